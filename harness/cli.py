@@ -95,6 +95,60 @@ def cmd_suites(args) -> int:
     return 0
 
 
+def cmd_place(args) -> int:
+    from .placement import place
+
+    placement = place(args.task, score=args.score, predictions=args.predictions,
+                      suite=args.suite, reference=args.reference, tolerance=args.tolerance,
+                      force=args.force)
+    if args.plot:
+        from .plots import placement_plot
+
+        placement_plot(placement, args.plot)
+    if args.json:
+        print(json.dumps(placement.to_dict(), indent=2))
+    else:
+        print(placement)
+        if args.plot:
+            print(f"  plot: {args.plot}")
+    return 0
+
+
+def cmd_export(args) -> int:
+    from .export import export_task
+    from .suite import load_suite
+
+    task = load_suite(args.suite).task(args.task)
+    info = export_task(task, args.dir, args.format)
+    print(f"wrote {args.dir}/{info['files']['train']} ({info['n_train']:,} rows with target), "
+          f"{args.dir}/{info['files']['holdout']} ({info['n_holdout']:,} rows without) and "
+          f"task.json")
+    print(f"{info['metric']} ({'lower' if info['lower_is_better'] else 'higher'} is better); "
+          f"{info['how_to_submit']}")
+    return 0
+
+
+def cmd_plot_suite(args) -> int:
+    from .plots import suite_plot
+    from .reference import Reference
+
+    overlay = Reference(args.overlay) if args.overlay else None
+    path = suite_plot(Reference(args.reference), args.out, overlay=overlay)
+    print(f"wrote {path}")
+    return 0
+
+
+def cmd_reference_build(args) -> int:
+    from .reference import build_reference
+
+    progress = not args.quiet and sys.stderr.isatty()
+    result = build_reference(suite=args.suite, out=args.out, seeds=args.seeds,
+                             workers=args.workers, progress=progress)
+    if not args.quiet:
+        print(render_run(result))
+    return 1 if result.failed else 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="tabpar",
@@ -129,6 +183,65 @@ def build_parser() -> argparse.ArgumentParser:
                      help="print one JSON object (out, jobs, ok, failed, tasks) instead of "
                           "tables")
     run.set_defaults(func=cmd_run)
+
+    place = sub.add_parser(
+        "place", help="place a score on a suite task against the published reference",
+        description="Place a holdout score (or a predictions file, scored here) against the "
+                    "baseline reference: percentile, rank, skill, noise band and a verdict "
+                    "(worse-than-naive, below-baseline, at-baseline, above-baseline).")
+    place.add_argument("task", help="task name, e.g. ames")
+    given = place.add_mutually_exclusive_group(required=True)
+    given.add_argument("--score", type=float, help="your holdout score in the task's metric")
+    given.add_argument("--predictions",
+                       help="CSV/Parquet with columns row_id and prediction (for binary tasks "
+                            "the probability of the positive class), one row per holdout row "
+                            "of 'tabpar export'")
+    place.add_argument("--suite", default=None,
+                       help="suite the task comes from (default: the reference's suite)")
+    place.add_argument("--reference", default="default",
+                       help="published reference name (default, quick) or a results folder "
+                            "(default: default)")
+    place.add_argument("--tolerance", type=float, default=0.05,
+                       help="skill units under par still called at-baseline (default: 0.05)")
+    place.add_argument("--force", action="store_true",
+                       help="place even when the task's data no longer matches the reference")
+    place.add_argument("--plot", default=None, help="also draw the placement to FILE (.png/.svg)")
+    place.add_argument("--json", action="store_true", help="print one JSON object")
+    place.set_defaults(func=cmd_place)
+
+    export = sub.add_parser("export", help="write a task's exact split for your own pipeline",
+                            description="Write train (with target) and holdout (without) "
+                                        "files, each with row_id, and task.json.")
+    export.add_argument("task", help="task name")
+    export.add_argument("dir", help="folder to write into")
+    export.add_argument("--suite", default="default", help="suite name or path (default: "
+                                                           "default)")
+    export.add_argument("--format", default="csv", choices=["csv", "parquet"],
+                        help="file format (default: csv)")
+    export.set_defaults(func=cmd_export)
+
+    plot = sub.add_parser("plot", help="draw comparison plots")
+    plot_sub = plot.add_subparsers(dest="plot_kind", metavar="KIND", required=True)
+    plot_suite = plot_sub.add_parser("suite", help="skill of each default ensemble per task, "
+                                                   "tasks ordered by difficulty")
+    plot_suite.add_argument("out", help="output file (.png or .svg)")
+    plot_suite.add_argument("--reference", default="default",
+                            help="reference name or results folder (default: default)")
+    plot_suite.add_argument("--overlay", default=None,
+                            help="a run folder to overlay (hollow markers)")
+    plot_suite.set_defaults(func=cmd_plot_suite)
+
+    ref = sub.add_parser("reference", help="build a published reference")
+    ref_sub = ref.add_subparsers(dest="reference_kind", metavar="ACTION", required=True)
+    build = ref_sub.add_parser("build", help="run every model × seeds on a suite and write "
+                                             "provenance.json (resumes an interrupted build)")
+    build.add_argument("--suite", default="default", help="suite (default: default)")
+    build.add_argument("--out", default=None,
+                       help="folder (default: results/reference/SUITE in the checkout)")
+    build.add_argument("--seeds", type=int, default=3, help="seeds per model (default: 3)")
+    build.add_argument("--workers", type=int, default=None, help="worker processes")
+    build.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    build.set_defaults(func=cmd_reference_build)
 
     suites = sub.add_parser("suites", help="list the built-in suites and their tasks")
     suites.set_defaults(func=cmd_suites)

@@ -13,34 +13,39 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy.stats import rankdata
-
 from .errors import UserError
 
 _EPS = 1e-15
 
 
-def _rmse(y, p):
-    return float(np.sqrt(np.mean((np.asarray(y, float) - np.asarray(p, float)) ** 2)))
+def _weights(w, n):
+    return np.ones(n) if w is None else np.asarray(w, float)
 
 
-def _rmsle(y, p):
+def _rmse(y, p, w=None):
+    y, p = np.asarray(y, float), np.asarray(p, float)
+    return float(np.sqrt(np.average((y - p) ** 2, weights=_weights(w, len(y)))))
+
+
+def _rmsle(y, p, w=None):
     y = np.asarray(y, float)
     p = np.asarray(p, float)
     if (y < 0).any() or (p < 0).any():
         raise UserError("RMSLE needs targets and predictions >= 0; found a negative value "
                         "(use rmse for targets that can be negative).")
-    return _rmse(np.log1p(y), np.log1p(p))
+    return _rmse(np.log1p(y), np.log1p(p), w)
 
 
-def _mae(y, p):
-    return float(np.mean(np.abs(np.asarray(y, float) - np.asarray(p, float))))
+def _mae(y, p, w=None):
+    y, p = np.asarray(y, float), np.asarray(p, float)
+    return float(np.average(np.abs(y - p), weights=_weights(w, len(y))))
 
 
-def _r2(y, p):
-    y = np.asarray(y, float)
-    ss_res = np.sum((y - np.asarray(p, float)) ** 2)
-    ss_tot = np.sum((y - y.mean()) ** 2)
+def _r2(y, p, w=None):
+    y, p = np.asarray(y, float), np.asarray(p, float)
+    w = _weights(w, len(y))
+    ss_res = np.sum(w * (y - p) ** 2)
+    ss_tot = np.sum(w * (y - np.average(y, weights=w)) ** 2)
     if ss_tot == 0:
         return 1.0 if ss_res == 0 else 0.0  # sklearn's convention for a constant target
     return float(1.0 - ss_res / ss_tot)
@@ -51,37 +56,42 @@ def _labels(p):
     return p.argmax(axis=1) if p.ndim == 2 else (p >= 0.5).astype(int)
 
 
-def _accuracy(y, p):
-    return float(np.mean(np.asarray(y) == _labels(p)))
+def _accuracy(y, p, w=None):
+    y = np.asarray(y)
+    return float(np.average(y == _labels(p), weights=_weights(w, len(y))))
 
 
-def _log_loss(y, p):
+def _log_loss(y, p, w=None):
     y = np.asarray(y, int)
     p = np.asarray(p, float)
     if p.ndim == 1:
         p = np.column_stack([1.0 - p, p])
     p = np.clip(p, _EPS, 1.0)
     p = p / p.sum(axis=1, keepdims=True)
-    return float(-np.mean(np.log(p[np.arange(len(y)), y])))
+    return float(-np.average(np.log(p[np.arange(len(y)), y]), weights=_weights(w, len(y))))
 
 
-def _binary_auc(y, score):
-    y = np.asarray(y, int)
-    n_pos = int(y.sum())
-    n_neg = len(y) - n_pos
-    if n_pos == 0 or n_neg == 0:
+def _binary_auc(y, score, w=None):
+    """Weighted Mann-Whitney AUC: ties between a positive and a negative count one half."""
+    y = np.asarray(y).astype(bool)
+    w = _weights(w, len(y))
+    values, group = np.unique(np.asarray(score, float), return_inverse=True)
+    pos = np.bincount(group, weights=w * y, minlength=len(values))
+    neg = np.bincount(group, weights=w * ~y, minlength=len(values))
+    total_pos, total_neg = pos.sum(), neg.sum()
+    if total_pos == 0 or total_neg == 0:
         return float("nan")  # undefined with one class present
-    ranks = rankdata(score)  # average ranks handle ties as the Mann-Whitney statistic does
-    return float((ranks[y == 1].sum() - n_pos * (n_pos + 1) / 2) / (n_pos * n_neg))
+    neg_below = np.cumsum(neg) - neg
+    return float(np.sum(pos * (neg_below + 0.5 * neg)) / (total_pos * total_neg))
 
 
-def _roc_auc(y, p):
+def _roc_auc(y, p, w=None):
     p = np.asarray(p, float)
     if p.ndim == 1:
-        return _binary_auc(y, p)
+        return _binary_auc(y, p, w)
     # multiclass: one-vs-rest, macro average (sklearn's multi_class="ovr", average="macro")
     y = np.asarray(y, int)
-    return float(np.mean([_binary_auc(y == k, p[:, k]) for k in range(p.shape[1])]))
+    return float(np.mean([_binary_auc(y == k, p[:, k], w) for k in range(p.shape[1])]))
 
 
 @dataclass(frozen=True)
@@ -95,8 +105,9 @@ class Metric:
     bounded: bool  # a bounded score (AUC, accuracy, R²) rather than an unbounded loss
     function: Callable
 
-    def __call__(self, y_true, prediction) -> float:
-        return self.function(y_true, prediction)
+    def __call__(self, y_true, prediction, weights=None) -> float:
+        """The score; ``weights`` are per-row counts or weights (the bootstrap's resampling)."""
+        return self.function(y_true, prediction, weights)
 
     def better(self, a: float, b: float) -> bool:
         """True when score ``a`` is strictly better than ``b`` in this metric's direction."""

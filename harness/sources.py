@@ -28,7 +28,7 @@ class LoadedTask:
 
     task: Task
     frame: pd.DataFrame  # features + target, dates parsed, drops applied
-    fingerprint: str  # hash of the loaded rows (before parsing), see ``fingerprint``
+    fingerprint: str  # hash of the source rows the task keeps, as read (before any parsing)
     n_source_rows: int
     notes: list[str] = field(default_factory=list)  # what was done to the rows, for the user
 
@@ -197,7 +197,7 @@ def load_task(task: Task) -> LoadedTask:
     raw = load_source(task.source, task.base_dir)
     n_source = len(raw)
     notes: list[str] = []
-    frame = raw
+    frame = raw.copy()
     if task.derive_target is not None:
         d = task.derive_target
         _require_column(frame, d.column, "derive_target", task)
@@ -207,21 +207,23 @@ def load_task(task: Task) -> LoadedTask:
         notes.append(f"target '{d.name}' = {d.column} >= {d.at_least:g}"
                      + (f" ({d.label})" if d.label else ""))
     _require_column(frame, task.target, "target", task)
-    missing = frame[task.target].isna()
+    missing = frame[task.target].isna().to_numpy()
     if missing.all():
         raise UserError(f"The target column '{task.target}' of task '{task.name}' has no "
                         f"values; choose another target.")
+    keep = np.flatnonzero(~missing)
     if missing.any():
-        frame = frame.loc[~missing]
         notes.append(f"dropped {int(missing.sum()):,} rows with no target")
-    if task.max_rows is not None and len(frame) > task.max_rows:
+    if task.max_rows is not None and len(keep) > task.max_rows:
         rng = np.random.default_rng(task.sample_seed)
-        keep = np.sort(rng.choice(len(frame), size=task.max_rows, replace=False))
-        notes.append(f"capped at {task.max_rows:,} of {len(frame):,} rows (seeded sample "
+        notes.append(f"capped at {task.max_rows:,} of {len(keep):,} rows (seeded sample "
                      f"{task.sample_seed}, original order kept)")
-        frame = frame.iloc[keep]
-    frame = frame.reset_index(drop=True)
-    digest = fingerprint(frame)
+        keep = keep[np.sort(rng.choice(len(keep), size=task.max_rows, replace=False))]
+    frame = frame.iloc[keep].reset_index(drop=True)
+    if task.derive_target is not None:
+        frame[task.target] = frame[task.target].astype(int)
+    # the source's own rows, as read, before any parsing: stable across code changes
+    digest = fingerprint(raw.iloc[keep])
 
     where = f"task '{task.name}'"
     if task.assemble_date is not None:

@@ -1,0 +1,124 @@
+"""Comparison plots (matplotlib, Agg backend): PNG or SVG chosen by the file extension."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from .errors import UserError
+from .reference import Reference, model_skills
+from .zoo import DEFAULT_ENSEMBLES, MODELS
+
+# Okabe–Ito colour-blind-safe palette
+PALETTE = {"naive": "#999999", "linear": "#CC79A7", "rf": "#009E73", "et": "#56B4E9",
+           "hgb": "#E69F00", "xgb": "#0072B2", "lgbm": "#D55E00"}
+USER_COLOUR = "#000000"
+
+
+def _figure(width, height):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    return plt.subplots(figsize=(width, height), dpi=120)
+
+
+def _save(fig, path: Path) -> Path:
+    path = Path(path)
+    if path.suffix.lower() not in (".png", ".svg"):
+        raise UserError(f"Plot file {path} must end in .png or .svg.")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fig.savefig(path, bbox_inches="tight")
+    except OSError as exc:
+        raise UserError(f"Cannot write the plot {path} ({exc.strerror}); choose another "
+                        f"path.") from None
+    finally:
+        import matplotlib.pyplot as plt
+
+        plt.close(fig)
+    return path
+
+
+def _direction(lower_is_better: bool) -> str:
+    return "← better (lower)" if lower_is_better else "better (higher) →"
+
+
+def placement_plot(placement, path) -> Path:
+    """The task's reference scores per model (a point per seed), naive and best as lines, the
+    best default's noise band shaded, and the placed score marked."""
+    models = [m for m in MODELS if m in placement.reference_scores]
+    fig, ax = _figure(8, 0.55 * len(models) + 2.2)
+    rng = np.random.default_rng(0)
+    for i, model in enumerate(models):
+        scores = np.asarray(placement.reference_scores[model], float)
+        jitter = rng.uniform(-0.12, 0.12, len(scores))
+        ax.scatter(scores, i + jitter, s=36, color=PALETTE.get(model, "#444444"),
+                   edgecolor="black", linewidth=0.5, zorder=3)
+    ax.scatter([], [], s=36, color="white", edgecolor="black", linewidth=0.5,
+               label="reference runs (one point per seed)")
+    ax.axvspan(placement.best - placement.noise, placement.best + placement.noise,
+               color="#56B4E9", alpha=0.18, zorder=1,
+               label=f"best default ± noise (95% bootstrap, ±{placement.noise:.3g})")
+    ax.axvline(placement.best, color="#0072B2", linestyle="--", linewidth=1.2, zorder=2,
+               label=f"best default: {placement.best_model} {placement.best:.4g}")
+    ax.axvline(placement.naive, color="#999999", linestyle=":", linewidth=1.5, zorder=2,
+               label=f"naive floor {placement.naive:.4g}")
+    ax.axvline(placement.score, color=USER_COLOUR, linewidth=2.2, zorder=4,
+               label=f"placed score {placement.score:.4g} ({placement.verdict})")
+    ax.scatter([placement.score], [len(models) - 0.4], marker="v", s=90, color=USER_COLOUR,
+               zorder=5)
+    ax.set_yticks(range(len(models)))
+    ax.set_yticklabels(models)
+    ax.set_ylim(-0.6, len(models) - 0.1)
+    ax.set_xlabel(f"{placement.metric} on the holdout  ({_direction(placement.lower_is_better)})")
+    ax.set_title(f"{placement.task}: score placed against the baseline reference\n"
+                 f"beats {placement.percentile:.0f}% of {placement.n_reference} reference runs · "
+                 f"verdict: {placement.verdict}", fontsize=11)
+    ax.grid(axis="x", alpha=0.3)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
+              frameon=False)
+    return _save(fig, path)
+
+
+def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> Path:
+    """Per task, the skill of each default ensemble; tasks ordered by difficulty (hardest at
+    the top). ``overlay``: a run folder's models drawn hollow, on the reference's scale."""
+    table = model_skills(reference)
+    table = table[table["model"].isin(DEFAULT_ENSEMBLES)]
+    if table.empty:
+        raise UserError(f"The reference {reference.folder} has no default-ensemble results to "
+                        f"plot.")
+    order = (table.groupby("task")["difficulty"].first().sort_values().index.tolist())
+    fig, ax = _figure(8.5, 0.5 * len(order) + 2.4)
+    low = -0.5
+    for j, model in enumerate(DEFAULT_ENSEMBLES):
+        sub = table[table["model"] == model].set_index("task").reindex(order)
+        offset = (j - 2) * 0.1
+        ax.scatter(np.clip(sub["skill"], low, None), np.arange(len(order)) + offset, s=34,
+                   color=PALETTE[model], edgecolor="black", linewidth=0.4, zorder=3,
+                   label=model)
+    if overlay is not None:
+        extra = model_skills(overlay, against=reference)
+        extra = extra[extra["task"].isin(order)]
+        for j, model in enumerate(sorted(extra["model"].unique())):
+            sub = extra[extra["model"] == model].set_index("task").reindex(order)
+            ax.scatter(np.clip(sub["skill"], low, None), np.arange(len(order)), s=90,
+                       facecolor="none", edgecolor=PALETTE.get(model, "black"), linewidth=1.6,
+                       zorder=4, label=f"{model} (overlay: {Path(overlay.folder).name})")
+    ax.axvline(0, color="#999999", linestyle=":", label="naive floor (skill 0)")
+    ax.axvline(1, color="#0072B2", linestyle="--", label="best default (skill 1)")
+    labels = [f"{t}  (difficulty {table[table['task'] == t]['difficulty'].iloc[0]:.2f})"
+              for t in order]
+    ax.set_yticks(range(len(order)))
+    ax.set_yticklabels(labels, fontsize=9)
+    ax.set_xlim(low - 0.05, None)
+    ax.set_xlabel(f"skill = gain over naive / best default's gain  (better →; values under "
+                  f"{low} drawn at {low})")
+    ax.set_title(f"Default ensembles across suite '{reference.suite}' "
+                 f"(tasks ordered by difficulty, hardest at the top)", fontsize=11)
+    ax.grid(axis="x", alpha=0.3)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=4, fontsize=8,
+              frameon=False)
+    return _save(fig, path)

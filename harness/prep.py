@@ -16,7 +16,7 @@ import pandas as pd
 from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.utils.validation import check_is_fitted
 
-CALENDAR_FIELDS = ("year", "month", "week", "day", "dayofweek", "dayofyear", "is_month_start",
+CALENDAR_FIELDS = ("year", "month", "week", "day", "day_of_week", "day_of_year", "is_month_start",
                    "is_month_end", "is_quarter_start", "is_quarter_end", "is_year_start",
                    "is_year_end", "elapsed_days")
 MISSING_SUFFIX = "__missing"
@@ -26,7 +26,7 @@ def calendar_fields(dates: pd.Series) -> np.ndarray:
     """(n, 13) float64 array of CALENDAR_FIELDS; NaN where the date is missing.
 
     Time-zone-aware dates give fields in their own zone; ``week`` is the ISO 8601 week number;
-    ``dayofweek`` is 0 = Monday; ``elapsed_days`` counts days (fractional) since the Unix epoch.
+    ``day_of_week`` is 0 = Monday; ``elapsed_days`` counts days (fractional) since the Unix epoch.
     """
     accessor = dates.dt
     out = np.empty((len(dates), len(CALENDAR_FIELDS)), dtype=np.float64)

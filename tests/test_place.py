@@ -1,0 +1,244 @@
+"""Placement statistics and verdicts.
+
+Arithmetic is checked against SciPy; verdicts against known-outcome pipelines built on exported
+splits of real quick-suite tasks (the published quick reference in results/reference/quick).
+"""
+import json
+
+import lightgbm
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats
+from sklearn.ensemble import HistGradientBoostingRegressor
+
+from harness.cli import main
+from harness.export import export_task
+from harness.metrics import METRICS
+from harness.placement import (bootstrap_scores, competition_rank, half_width, percentile_of,
+                               place)
+from harness.prep import BaselinePrep
+from harness.suite import load_suite
+
+
+@pytest.mark.parametrize("metric_name", ["rmse", "roc_auc"])
+def test_percentile_matches_scipy_percentileofscore(metric_name):
+    metric = METRICS[metric_name]
+    rng = np.random.default_rng(1)
+    runs = np.round(rng.random(40), 2)  # synthetic reference scores, with ties
+    for score in [runs[3], 0.5, -1.0, 2.0]:
+        # reference: scipy.stats.percentileofscore(kind="mean") counts ties half; for a loss,
+        # "beats" means lower, so score and runs are negated first
+        sign = -1 if metric.lower_is_better else 1
+        expected = stats.percentileofscore(sign * runs, sign * score, kind="mean")
+        assert percentile_of(metric, score, runs) == pytest.approx(expected)
+
+
+@pytest.mark.parametrize("metric_name", ["mae", "accuracy"])
+def test_rank_matches_scipy_rankdata_min(metric_name):
+    metric = METRICS[metric_name]
+    runs = np.array([0.3, 0.5, 0.5, 0.7, 0.9])  # synthetic, hand-checkable
+    for score in [0.5, 0.1, 1.0, 0.7]:
+        sign = 1 if metric.lower_is_better else -1
+        # reference: scipy.stats.rankdata(method="min") on the better-first ordering
+        expected = stats.rankdata(sign * np.append(runs, score), method="min")[-1]
+        assert competition_rank(metric, score, runs) == expected
+
+
+def test_bootstrap_band_matches_scipy_bootstrap():
+    rng = np.random.default_rng(2)
+    y = rng.normal(size=400)  # synthetic regression holdout
+    pred = y + rng.normal(scale=0.5, size=400)
+    ours = half_width(bootstrap_scores(METRICS["rmse"], y, [pred], n_boot=2000, seed=3)[:, 0])
+    # reference: scipy.stats.bootstrap, paired resampling of (y, pred), percentile interval
+    res = stats.bootstrap((y, pred), lambda a, b: np.sqrt(np.mean((a - b) ** 2)), paired=True,
+                          vectorized=False, n_resamples=2000, method="percentile",
+                          confidence_level=0.95, random_state=4)
+    theirs = (res.confidence_interval.high - res.confidence_interval.low) / 2
+    assert ours == pytest.approx(theirs, rel=0.12)
+
+
+def test_weighted_metrics_match_sklearn_sample_weight():
+    from sklearn import metrics as skm
+
+    rng = np.random.default_rng(5)
+    y = rng.integers(0, 2, 300)
+    p = np.round(rng.random(300), 1)  # ties on purpose
+    w = rng.integers(0, 4, 300)  # bootstrap-like counts
+    # reference: sklearn.metrics with sample_weight
+    assert METRICS["roc_auc"](y, p, w) == pytest.approx(skm.roc_auc_score(y, p, sample_weight=w))
+    assert METRICS["log_loss"](y, p.clip(0.01, 0.99), w) == pytest.approx(
+        skm.log_loss(y, p.clip(0.01, 0.99), sample_weight=w))
+    yr, pr = rng.gamma(2, size=300), rng.gamma(2, size=300)
+    assert METRICS["rmse"](yr, pr, w) == pytest.approx(
+        np.sqrt(skm.mean_squared_error(yr, pr, sample_weight=w)))
+    assert METRICS["r2"](yr, pr, w) == pytest.approx(skm.r2_score(yr, pr, sample_weight=w))
+    assert METRICS["mae"](yr, pr, w) == pytest.approx(
+        skm.mean_absolute_error(yr, pr, sample_weight=w))
+
+
+# --- known outcomes on exported splits of real tasks ----------------------------------------
+
+SUITE = load_suite("quick")
+
+
+def _fit_predict(task_name, tmp_path, mode):
+    """Fit a pipeline on the exported train rows and predict the exported holdout rows."""
+    task = SUITE.task(task_name)
+    export_task(task, tmp_path)
+    train = pd.read_csv(tmp_path / "train.csv")
+    holdout = pd.read_csv(tmp_path / "holdout.csv")
+    y = train.pop(task.target).to_numpy(float)
+    train.pop("row_id")
+    ids = holdout.pop("row_id")
+    dates = list(task.dates) + ([task.assemble_date.name] if task.assemble_date else [])
+    prep = BaselinePrep(date_columns=dates).fit(train)
+    X_train = prep.transform(train)
+    if mode == "separate-codes":
+        # the classic mistake: a second encoder learned on the holdout rows alone
+        X_hold = BaselinePrep(date_columns=dates).fit(holdout).transform(holdout)
+    else:
+        X_hold = prep.transform(holdout)
+    if mode == "no-log":
+        model = lightgbm.LGBMRegressor(random_state=0, verbose=-1).fit(X_train, y)
+        pred = np.clip(model.predict(X_hold), 0, None)
+    else:
+        model = HistGradientBoostingRegressor(random_state=7).fit(X_train, np.log1p(y))
+        pred = np.expm1(model.predict(X_hold))
+    if mode == "shuffled":
+        pred = np.random.default_rng(0).permutation(pred)
+    path = tmp_path / "predictions.csv"
+    pd.DataFrame({"row_id": ids, "prediction": pred}).to_csv(path, index=False)
+    return place(task_name, predictions=path, suite="quick", reference="quick")
+
+
+def test_standard_pipeline_is_at_baseline(tmp_path):
+    result = _fit_predict("ames", tmp_path, "standard")
+    assert result.paired
+    assert result.verdict == "at-baseline"
+
+
+def test_codes_learned_on_holdout_rows_are_below_baseline(tmp_path):
+    # hotel_rates has many categorical columns (country, agent, company), so separately learned
+    # codes scramble most of them; on ames the harm stays inside the 0.05-skill tolerance
+    result = _fit_predict("hotel_rates", tmp_path, "separate-codes")
+    assert result.verdict == "below-baseline"
+    assert "category codes" in result.message
+
+
+def test_rmsle_task_trained_without_log_is_worse_than_the_default_band(tmp_path):
+    result = _fit_predict("diamonds", tmp_path, "no-log")
+    assert result.score > result.best + result.noise  # lower is better
+    assert result.verdict in ("below-baseline", "worse-than-naive")
+
+
+def test_shuffled_predictions_are_flagged(tmp_path):
+    result = _fit_predict("ames", tmp_path, "shuffled")
+    assert result.verdict in ("worse-than-naive", "below-baseline")
+
+
+def test_place_json_has_every_key(capsys):
+    code = main(["place", "flights", "--suite", "quick", "--reference", "quick", "--score",
+                 "0.58", "--json"])
+    assert code == 0
+    answer = json.loads(capsys.readouterr().out)
+    for key in ["task", "metric", "lower_is_better", "score", "percentile", "rank",
+                "n_reference", "naive", "best", "par", "skill", "noise", "seed_spread",
+                "verdict", "difficulty_percentile", "message"]:
+        assert key in answer
+    assert answer["lower_is_better"] is False
+    assert 0 <= answer["percentile"] <= 100
+    # flights is the suite's hardest task (design notes: AUC about 0.6)
+    assert answer["difficulty_percentile"] == 100
+
+
+# --- bad predictions files --------------------------------------------------------------
+
+def _holdout_ids(tmp_path):
+    export_task(SUITE.task("attrition"), tmp_path)
+    return pd.read_csv(tmp_path / "holdout.csv")["row_id"].to_numpy()
+
+
+@pytest.mark.parametrize("case", ["missing", "duplicated", "unknown", "nan", "text",
+                                  "no-column", "out-of-range"])
+def test_bad_predictions_file_is_one_sentence_exit_2(tmp_path, capsys, case):
+    ids = _holdout_ids(tmp_path)
+    pred = np.full(len(ids), 0.3)
+    frame = pd.DataFrame({"row_id": ids, "prediction": pred.astype(object)})
+    if case == "missing":
+        frame = frame.iloc[1:]
+    elif case == "duplicated":
+        frame = pd.concat([frame, frame.iloc[:1]])
+    elif case == "unknown":
+        frame.loc[0, "row_id"] = 10**7
+    elif case == "nan":
+        frame.loc[0, "prediction"] = np.nan
+    elif case == "text":
+        frame.loc[0, "prediction"] = "high"
+    elif case == "no-column":
+        frame = frame.rename(columns={"prediction": "p"})
+    elif case == "out-of-range":
+        frame.loc[0, "prediction"] = 1.5
+    path = tmp_path / "bad.csv"
+    frame.to_csv(path, index=False)
+    code = main(["place", "attrition", "--suite", "quick", "--reference", "quick",
+                 "--predictions", str(path)])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert err.startswith("tabpar: error:") and err.count("\n") == 1
+    assert "bad.csv" in err
+
+
+def test_changed_data_is_refused_unless_forced(tmp_path, capsys):
+    reference = tmp_path / "ref"
+    import shutil
+
+    from harness.reference import published_root
+
+    shutil.copytree(published_root() / "reference" / "quick", reference)
+    meta = json.loads((reference / "run.json").read_text())
+    meta["tasks"]["attrition"]["fingerprint"] = "0" * 16
+    (reference / "run.json").write_text(json.dumps(meta))
+    assert main(["place", "attrition", "--reference", str(reference), "--score", "0.7"]) == 2
+    assert "no longer matches" in capsys.readouterr().err
+    assert main(["place", "attrition", "--reference", str(reference), "--score", "0.7",
+                 "--force"]) == 0
+
+
+def test_placement_plot_has_labelled_elements(tmp_path):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from harness import plots
+
+    result = place("diamonds", score=0.2, suite="quick", reference="quick")
+    captured = {}
+    original = plots._save
+
+    def keep(fig, path):
+        captured["fig"] = fig
+        return original(fig, path)
+
+    plots._save = keep
+    try:
+        path = plots.placement_plot(result, tmp_path / "place.png")
+    finally:
+        plots._save = original
+    assert path.stat().st_size > 10_000
+    ax = captured["fig"].axes[0]
+    assert "rmsle" in ax.get_xlabel() and "lower" in ax.get_xlabel()
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert any("placed score" in t for t in labels)
+    assert any("naive floor" in t for t in labels)
+    assert any("noise" in t for t in labels)
+    assert "diamonds" in ax.get_title()
+
+
+def test_suite_plot_svg_and_png(tmp_path):
+    from harness.plots import suite_plot
+    from harness.reference import Reference
+
+    ref = Reference("quick")
+    for name in ("suite.png", "suite.svg"):
+        path = suite_plot(ref, tmp_path / name, overlay=ref)
+        assert path.stat().st_size > 5_000

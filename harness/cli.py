@@ -56,8 +56,13 @@ def render_run(result) -> str:
     lines.append("± is the standard deviation over seeds (0 for models the seed does not "
                  "change); the holdout band from finite rows comes with 'tabpar place'.")
     if result.failed:
-        lines.append(f"{result.failed} jobs failed: their errors are in "
-                     f"{result.out}/jobs.jsonl (status 'failed'); a rerun retries them.")
+        lines.append(f"{result.failed} jobs did not finish (a rerun with the same --out "
+                     f"retries them; details in {result.out}/jobs.jsonl):")
+        for row in result.failures[:8]:
+            lines.append(f"  {row['task']}/{row['model']} seed {row['seed']}: {row['status']} — "
+                         f"{row['error']}")
+        if len(result.failures) > 8:
+            lines.append(f"  ... and {len(result.failures) - 8} more")
     if result.interrupted:
         lines.append("Interrupted: every finished job is saved; run the same command again "
                      "(same --out) to resume.")
@@ -71,7 +76,7 @@ def cmd_run(args) -> int:
     say = (lambda m: print(m, file=sys.stderr)) if progress else None
     result = run_suite(suite=args.suite, tasks=args.tasks, models=args.models,
                        seeds=args.seeds, out=args.out, workers=args.workers,
-                       progress=progress, on_event=say)
+                       progress=progress, on_event=say, job_timeout=args.job_timeout)
     if args.json:
         print(json.dumps(result.to_dict(), indent=2))
     elif not args.quiet:
@@ -178,6 +183,9 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--workers", type=int, default=None,
                      help="parallel worker processes (default: all cores); each model gets "
                           "cores / workers threads")
+    run.add_argument("--job-timeout", type=float, default=None, metavar="SECONDS",
+                     help="stop a job that runs longer and record it as 'timeout' (default: "
+                          "no limit)")
     run.add_argument("--quiet", action="store_true", help="print nothing but errors")
     run.add_argument("--json", action="store_true",
                      help="print one JSON object (out, jobs, ok, failed, tasks) instead of "

@@ -9,16 +9,13 @@ from __future__ import annotations
 
 import hashlib
 import json
-import math
 import os
 import platform
 import signal
 import sys
 import time
-from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
-from multiprocessing import get_context
 from pathlib import Path
 
 import numpy as np
@@ -30,6 +27,7 @@ from .sources import load_task
 from .split import encode_target, split_rows
 from .store import STORE_FORMAT, ResultsStore, atomic_write_text
 from .suite import Suite, Task, load_suite
+from .workers import LocalPool
 from .zoo import MODELS, build_model, check_models
 
 PROCEDURE = "builtin"
@@ -179,6 +177,15 @@ def _predict(model, X, task_type: str, n_classes: int, log_target: bool):
     return full[:, 1] if task_type == "binary" else full
 
 
+def warm_imports() -> None:
+    """Import every model library once, in a fresh worker, before its first job."""
+    import lightgbm  # noqa: F401
+    import sklearn.ensemble  # noqa: F401
+    import sklearn.linear_model  # noqa: F401
+    import threadpoolctl  # noqa: F401
+    import xgboost  # noqa: F401
+
+
 def execute_job(job: dict) -> dict:
     """Fit one (task, model, seed) and score it. Returns the result row plus predictions.
 
@@ -218,11 +225,6 @@ def execute_job(job: dict) -> dict:
     return {"row": row, "prediction": prediction}
 
 
-def _worker_init():
-    # the parent handles Ctrl-C and SIGTERM; workers must not die mid-write on their own
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-
-
 # --- the run ---------------------------------------------------------------------------
 
 @dataclass
@@ -237,10 +239,13 @@ class RunResult:
     reused: int
     tasks: dict  # task name → PreparedTask.summary() plus "models": {model: stats}
     interrupted: bool = False
+    failures: list = field(default_factory=list)  # rows of jobs that did not finish ok
 
     def to_dict(self) -> dict:
         return {"out": str(self.out), "suite": self.suite, "jobs": self.jobs, "ok": self.ok,
                 "failed": self.failed, "reused": self.reused, "interrupted": self.interrupted,
+                "failures": [{k: r.get(k) for k in ("task", "model", "seed", "status", "error")}
+                             for r in self.failures],
                 "tasks": {name: {"metric": t["metric"], "lower_is_better": t["lower_is_better"],
                                  "split": t["split"], "notes": t["notes"],
                                  "mean_score": {m: s["mean"] for m, s in t["models"].items()}}
@@ -326,7 +331,8 @@ def _check_compatible(meta: dict | None, suite: Suite, prepared: list[PreparedTa
 
 def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seeds: int = 3,
               out: str | Path | None = None, workers: int | None = None,
-              progress: bool = False, on_event=None) -> RunResult:
+              progress: bool = False, on_event=None,
+              job_timeout: float | None = None) -> RunResult:
     """Run tasks × models × seeds (seeds 0..K-1) and append every finished job to OUT.
 
     Returns a RunResult; per task and model the mean/std of the holdout score over seeds, in
@@ -342,6 +348,9 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         workers = cores
     if workers < 1:
         raise UserError(f"--workers must be at least 1, not {workers}.")
+    if job_timeout is not None and not job_timeout > 0:
+        raise UserError(f"--job-timeout must be a positive number of seconds, not "
+                        f"{job_timeout!r}.")
     threads = max(1, cores // workers)
     out = Path(out) if out is not None else default_out(suite.name)
     store = ResultsStore(out)
@@ -365,7 +374,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         reused = len(jobs) - len(todo)
         versions = meta["versions"]
         bar = Progress(len(todo), progress)
-        interrupted = _execute(todo, workers, store, versions, prepared, bar)
+        interrupted = _execute(todo, workers, store, versions, prepared, bar, job_timeout)
         bar.close()
     finally:
         store.close()
@@ -384,32 +393,37 @@ def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict) ->
     store.append(row)
 
 
-def _execute(todo, workers, store, versions, prepared, bar) -> bool:
-    """Run the jobs; returns True when interrupted (Ctrl-C / SIGTERM)."""
+def _lost_row(job: dict, reason: str, status: str) -> dict:
+    now = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    row = {k: job[k] for k in ("task", "model", "seed", "metric", "lower_is_better",
+                               "fingerprint", "procedure", "threads")}
+    row.update(status=status, error=reason, score=None, train_score=None, fit_seconds=None,
+               predict_seconds=None, started_at=now, finished_at=now)
+    return {"row": row, "prediction": None}
+
+
+def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None) -> bool:
+    """Run the jobs, recording each as it finishes; True when interrupted (Ctrl-C/SIGTERM)."""
     by_name = {p.task.name: p for p in prepared}
 
     def on_term(signum, frame):
         raise KeyboardInterrupt
 
+    def on_result(job, result):
+        _record(result, store, versions, by_name)
+        bar.step(f"{job['task']}/{job['model']}")
+
+    def on_lost(job, reason, status):
+        on_result(job, _lost_row(job, reason, status))
+
     previous = signal.signal(signal.SIGTERM, on_term)
     try:
-        if workers == 1 or len(todo) <= 1:
-            for job in todo:
-                _record(execute_job(job), store, versions, by_name)
-                bar.step(f"{job['task']}/{job['model']}")
-            return False
-        pool = ProcessPoolExecutor(max_workers=workers, mp_context=get_context("spawn"),
-                                   initializer=_worker_init)
-        try:
-            pending = {pool.submit(execute_job, job): job for job in todo}
-            while pending:
-                finished, _ = wait(pending, return_when=FIRST_COMPLETED)
-                for future in finished:
-                    job = pending.pop(future)
-                    _record(future.result(), store, versions, by_name)
-                    bar.step(f"{job['task']}/{job['model']}")
-        finally:
-            pool.shutdown(wait=True, cancel_futures=True)
+        if workers == 1 and job_timeout is None:
+            for job in todo:  # in this process: no start-up cost, easy to debug
+                on_result(job, execute_job(job))
+        else:
+            LocalPool(execute_job, workers, job_timeout, initializer=warm_imports).run(
+                todo, on_result, on_lost)
         return False
     except KeyboardInterrupt:
         return True
@@ -442,9 +456,9 @@ def _summarise(out, suite_name, jobs, reused, prepared, store, interrupted) -> R
             }
         info["models"] = models
         tasks[p.task.name] = info
+    failures = sorted((r for r in mine if r["status"] != "ok"),
+                      key=lambda r: (r["task"], r["model"], r["seed"]))
     return RunResult(out=Path(out), suite=suite_name, jobs=len(jobs), ok=ok, failed=failed,
-                     reused=reused, tasks=tasks, interrupted=interrupted)
+                     reused=reused, tasks=tasks, interrupted=interrupted, failures=failures)
 
 
-def math_isfinite(x) -> bool:
-    return x is not None and math.isfinite(x)

@@ -1,0 +1,151 @@
+"""Local worker processes that run jobs, with a per-job time limit.
+
+Each worker is a ``spawn``-started process that runs one job at a time. A job over its time
+limit is stopped by killing its worker, which is then replaced, so the pool survives; a worker
+that dies on its own (a crash in a native library, the out-of-memory killer) is replaced too and
+its job reported as failed. The job function is passed in, so this module knows nothing of what
+a job is.
+"""
+from __future__ import annotations
+
+import os
+import signal
+import sys
+import time
+from multiprocessing import get_context
+from multiprocessing.connection import wait
+
+_CONTEXT = get_context("spawn")
+
+
+def _die_with_parent() -> None:
+    """Ask Linux to kill this worker when its parent dies (even by SIGKILL)."""
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL("libc.so.6", use_errno=True)
+        libc.prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        pass
+
+
+def _worker_main(conn, function, initializer, parent_pid):
+    # the parent handles Ctrl-C and SIGTERM and stops its workers itself
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _die_with_parent()
+    if os.getppid() != parent_pid:  # the parent died before the request took effect
+        return
+    if initializer is not None:
+        initializer()  # imports up front, so a job's time limit measures the job alone
+    try:
+        while True:
+            job = conn.recv()
+            if job is None:
+                return
+            conn.send(("started", None))
+            conn.send(("done", function(job)))
+    except (EOFError, BrokenPipeError, ConnectionResetError):
+        return  # the parent is gone: nothing to report to
+
+
+class _Worker:
+    def __init__(self, function, initializer):
+        self.conn, child = _CONTEXT.Pipe()
+        self.process = _CONTEXT.Process(target=_worker_main,
+                                        args=(child, function, initializer, os.getpid()),
+                                        daemon=True)
+        self.process.start()
+        child.close()
+        self.job = None
+        self.deadline = None  # set when the worker reports the job started
+
+    def give(self, job):
+        self.job = job
+        self.deadline = None
+        self.conn.send(job)
+
+    def stop(self, kill=False):
+        try:
+            if kill:
+                self.process.kill()
+            else:
+                self.conn.send(None)
+        except (OSError, BrokenPipeError):
+            pass
+        self.process.join(timeout=5)
+        if self.process.is_alive():
+            self.process.kill()
+            self.process.join()
+        self.conn.close()
+
+
+class LocalPool:
+    """Run ``function(job)`` for every job in up to ``workers`` processes.
+
+    ``on_result(job, result)`` is called in this process for each finished job;
+    ``on_lost(job, reason, status)`` for a job whose worker was stopped (status ``timeout``) or
+    died (status ``failed``).
+    """
+
+    def __init__(self, function, workers: int, job_timeout: float | None = None,
+                 initializer=None):
+        self.function = function
+        self.workers = workers
+        self.job_timeout = job_timeout
+        self.initializer = initializer
+
+    def run(self, jobs, on_result, on_lost) -> None:
+        queue = list(jobs)
+        pool = [_Worker(self.function, self.initializer)
+                for _ in range(min(self.workers, len(queue)))]
+        try:
+            for worker in pool:
+                if queue:
+                    worker.give(queue.pop(0))
+            while any(w.job is not None for w in pool):
+                busy = [w for w in pool if w.job is not None]
+                deadlines = [w.deadline for w in busy if w.deadline is not None]
+                wait_for = (max(0.0, min(deadlines) - time.monotonic()) if deadlines else None)
+                ready = wait([w.conn for w in busy] + [w.process.sentinel for w in busy],
+                             timeout=wait_for)
+                for i, worker in enumerate(pool):
+                    if worker.job is None:
+                        continue
+                    job = worker.job
+                    if worker.conn in ready:
+                        try:
+                            kind, result = worker.conn.recv()
+                        except (EOFError, OSError):
+                            kind, result = "lost", None
+                        if kind == "started":
+                            if self.job_timeout is not None:
+                                worker.deadline = time.monotonic() + self.job_timeout
+                            continue
+                        if kind == "done":
+                            worker.job = None
+                            on_result(job, result)
+                        else:
+                            pool[i] = self._replace(worker, kill=True)
+                            on_lost(job, f"the worker process died (exit code "
+                                         f"{worker.process.exitcode})", "failed")
+                    elif worker.process.sentinel in ready:
+                        pool[i] = self._replace(worker, kill=True)
+                        on_lost(job, f"the worker process died (exit code "
+                                     f"{worker.process.exitcode})", "failed")
+                    elif worker.deadline is not None and time.monotonic() >= worker.deadline:
+                        pool[i] = self._replace(worker, kill=True)
+                        on_lost(job, f"stopped after {self.job_timeout:g} s (--job-timeout)",
+                                "timeout")
+                    else:
+                        continue
+                    if pool[i].job is None and queue:
+                        pool[i].give(queue.pop(0))
+        finally:
+            for worker in pool:
+                worker.stop(kill=worker.job is not None)
+
+    def _replace(self, worker, kill):
+        worker.stop(kill=kill)
+        return _Worker(self.function, self.initializer)

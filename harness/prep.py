@@ -8,6 +8,10 @@
   for each column that had gaps in the training rows (as SimpleImputer(add_indicator=True)).
 
 Nothing else. Output is a float32 array (what the tree libraries use internally).
+
+The switches ``calendar``, ``missing_flags``, ``fill`` and ``one_hot_max_levels`` exist for
+variants that ``tabpar compare`` tests against the built-in procedure; their defaults are the
+built-in procedure.
 """
 from __future__ import annotations
 
@@ -64,11 +68,25 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
         Columns to treat as dates even if stored as text; datetime columns are found anyway.
     ordinal : dict of str → list, optional
         Level order for ordinal columns: the first level gets code 1.
+    calendar : bool, default True
+        Expand dates into calendar fields; False drops date columns.
+    missing_flags : bool, default True
+        Add a 0/1 flag per column with gaps in the training rows.
+    fill : {"median", "mean"}, default "median"
+        Statistic of the training rows that fills numeric gaps.
+    one_hot_max_levels : int, default 0
+        Columns with at most this many training levels get one 0/1 column per level (missing
+        and unseen → all zeros) instead of an integer code; 0 = never.
     """
 
-    def __init__(self, date_columns=None, ordinal=None):
+    def __init__(self, date_columns=None, ordinal=None, calendar=True, missing_flags=True,
+                 fill="median", one_hot_max_levels=0):
         self.date_columns = date_columns
         self.ordinal = ordinal
+        self.calendar = calendar
+        self.missing_flags = missing_flags
+        self.fill = fill
+        self.one_hot_max_levels = one_hot_max_levels
 
     def _frame(self, X) -> pd.DataFrame:
         if not isinstance(X, pd.DataFrame):
@@ -82,6 +100,9 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
 
     def fit(self, X, y=None):
         """Learn codes, medians and which columns get missing flags, from these rows only."""
+        if self.fill not in ("median", "mean"):
+            raise ValueError(f"fill must be 'median' or 'mean', not {self.fill!r}")
+        stat = np.nanmedian if self.fill == "median" else np.nanmean
         X = self._frame(X)
         self.feature_names_in_ = np.asarray([str(c) for c in X.columns], dtype=object)
         self.n_features_in_ = X.shape[1]
@@ -93,11 +114,14 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
         names = []
         for col in X.columns:
             series = X[col]
+            if _is_date(series) and not self.calendar:
+                self.roles_[col] = "dropped"
+                continue
             if _is_date(series):
                 self.roles_[col] = "date"
                 fields = calendar_fields(series)
                 gaps = bool(np.isnan(fields[:, 0]).any())
-                med = np.nanmedian(fields, axis=0) if not np.isnan(fields).all() else \
+                med = stat(fields, axis=0) if not np.isnan(fields).all() else \
                     np.zeros(fields.shape[1])
                 self.medians_[col] = np.where(np.isnan(med), 0.0, med)
                 names += [f"{col}__{f}" for f in CALENDAR_FIELDS]
@@ -105,7 +129,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 self.roles_[col] = "numeric"
                 values = series.to_numpy(dtype=np.float64, na_value=np.nan)
                 gaps = bool(np.isnan(values).any())
-                med = np.nanmedian(values) if not np.isnan(values).all() else 0.0
+                med = stat(values) if not np.isnan(values).all() else 0.0
                 self.medians_[col] = float(med)
                 names.append(str(col))
             else:
@@ -119,8 +143,12 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                     seen = pd.unique(series.dropna().to_numpy(dtype=object))
                     levels = sorted(seen, key=lambda v: (str(type(v)), str(v)))
                 self.categories_[col] = pd.Index(levels, dtype=object)
-                names.append(str(col))
-            if gaps:
+                if 0 < len(levels) <= self.one_hot_max_levels:
+                    self.roles_[col] = "one_hot"
+                    names += [f"{col}=={level}" for level in levels]
+                else:
+                    names.append(str(col))
+            if gaps and self.missing_flags:
                 self.flagged_.append(col)
         names += [f"{col}{MISSING_SUFFIX}" for col in self.flagged_]
         self.feature_names_out_ = np.asarray(names, dtype=object)
@@ -130,7 +158,8 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
         """Float32 array (n_rows, len(get_feature_names_out())) of prepared features."""
         check_is_fitted(self, "feature_names_out_")
         X = self._frame(X)
-        missing_cols = [c for c in self.roles_ if c not in X.columns]
+        missing_cols = [c for c, r in self.roles_.items() if c not in X.columns and
+                        r != "dropped"]
         if missing_cols:
             raise ValueError(f"columns seen in fit are missing: {missing_cols[:5]}")
         n = len(X)
@@ -138,6 +167,8 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
         j = 0
         flags = {}
         for col, role in self.roles_.items():
+            if role == "dropped":
+                continue
             series = X[col]
             if role == "date":
                 fields = calendar_fields(series)
@@ -153,10 +184,16 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 j += 1
             else:
                 levels = self.categories_[col]
-                values = series.to_numpy(dtype=object)
-                codes = levels.get_indexer(values)  # -1 for missing and unseen
-                out[:, j] = codes + 1
-                j += 1
+                codes = levels.get_indexer(series.to_numpy(dtype=object))  # -1: missing, unseen
+                if role == "one_hot":
+                    block = out[:, j:j + len(levels)]
+                    block[:] = 0
+                    seen = codes >= 0
+                    block[np.flatnonzero(seen), codes[seen]] = 1
+                    j += len(levels)
+                else:
+                    out[:, j] = codes + 1
+                    j += 1
                 gap = None
             if col in self.flagged_:
                 flags[col] = gap

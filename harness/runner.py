@@ -16,22 +16,20 @@ import sys
 import time
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
 
 from .errors import UserError
 from .metrics import get_metric
-from .prep import BaselinePrep
+from .procedures import Procedure, builtin
 from .sources import load_task
 from .split import encode_target, split_rows
 from .store import STORE_FORMAT, ResultsStore, atomic_write_text
 from .suite import Suite, Task, load_suite
 from .workers import LocalPool
 from .zoo import MODELS, build_model, check_models
-
-PROCEDURE = "builtin"
-
 
 def tabpar_version() -> str:
     from importlib.metadata import PackageNotFoundError, version
@@ -70,6 +68,17 @@ def cache_root() -> Path:
     return Path(base) / "tabpar"
 
 
+@lru_cache(maxsize=1)
+def preparation_code_digest() -> str:
+    """Hash of the modules that shape prepared arrays, so a code change invalidates the cache."""
+    from . import prep, procedures, sources, split
+
+    digest = hashlib.sha256()
+    for module in (sources, split, prep, procedures):
+        digest.update(Path(module.__file__).read_bytes())
+    return digest.hexdigest()[:16]
+
+
 @dataclass
 class PreparedTask:
     """A task after load → split → baseline procedure, with its arrays on disk."""
@@ -83,6 +92,8 @@ class PreparedTask:
     n_holdout: int
     split_description: str
     notes: list = field(default_factory=list)
+    procedure: str = "builtin"
+    leakage: str | None = None  # why the procedure learns from holdout rows (None: it does not)
 
     def summary(self) -> dict:
         return {"fingerprint": self.fingerprint, "task_key": self.task.key(),
@@ -90,22 +101,61 @@ class PreparedTask:
                 "lower_is_better": self.task.lower_is_better, "n_train": self.n_train,
                 "n_holdout": self.n_holdout, "n_features": len(self.feature_names),
                 "split": self.split_description, "notes": self.notes,
-                "classes": [str(c) for c in self.classes],
-                "definition": self.task.definition()}
+                "classes": [str(c) for c in self.classes], "procedure": self.procedure,
+                "leakage": self.leakage, "definition": self.task.definition()}
 
 
-def _prep_params(task: Task) -> dict:
-    dates = list(task.dates) + ([task.assemble_date.name] if task.assemble_date else [])
-    return {"date_columns": dates, "ordinal": {k: list(v) for k, v in task.ordinal}}
+def _as_features(output, n_rows: int, procedure: Procedure, task: Task, side: str):
+    """A procedure's output as a float32 array; UserError when it is not numeric features."""
+    if hasattr(output, "toarray"):  # scipy sparse
+        output = output.toarray()
+    if hasattr(output, "to_numpy"):
+        output = output.to_numpy()
+    try:
+        array = np.asarray(output, dtype=np.float32)
+    except (TypeError, ValueError):
+        raise UserError(f"Procedure '{procedure.name}' returned non-numeric features for the "
+                        f"{side} rows of task '{task.name}'; return numbers only.") from None
+    if array.ndim != 2 or array.shape[0] != n_rows:
+        raise UserError(f"Procedure '{procedure.name}' returned shape {array.shape} for the "
+                        f"{n_rows} {side} rows of task '{task.name}'; return one row per input "
+                        f"row.")
+    if np.isinf(array).any():
+        raise UserError(f"Procedure '{procedure.name}' returned infinite values for task "
+                        f"'{task.name}'; return finite numbers (NaN is allowed).")
+    return array
 
 
-def prepare_task(task: Task, cache_dir: Path | None = None) -> PreparedTask:
-    """Load, split and prepare one task (or reuse its cached arrays)."""
+def _leakage_check(transformer, train, holdout, X_train, X_hold) -> str | None:
+    """Why the fitted transformer learns from the rows it transforms, or None.
+
+    A sound transformer maps each row by what it learned in fit alone: transforming the
+    holdout in reverse order gives the same rows, and transforming training rows again after
+    the holdout gives what it gave before.
+    """
+    reverse = np.asarray(transformer.transform(holdout.iloc[::-1]), dtype=np.float32)[::-1]
+    if reverse.shape != X_hold.shape or not np.array_equal(reverse, X_hold, equal_nan=True):
+        return ("its output for a holdout row depends on the other rows transformed with it, "
+                "so it learns from the holdout rows")
+    head = train.iloc[: min(len(train), 500)]
+    again = np.asarray(transformer.transform(head), dtype=np.float32)
+    if again.shape != X_train[: len(head)].shape or not np.array_equal(
+            again, X_train[: len(head)], equal_nan=True):
+        return ("transforming the holdout rows changed its output for training rows, so it "
+                "learned from the holdout rows")
+    return None
+
+
+def prepare_task(task: Task, cache_dir: Path | None = None,
+                 procedure: Procedure | None = None) -> PreparedTask:
+    """Load, split and prepare one task with ``procedure`` (default: the built-in baseline),
+    or reuse its cached arrays."""
+    procedure = procedure or builtin()
     loaded = load_task(task)
-    params = _prep_params(task)
     key_text = json.dumps({"task": task.key(), "fingerprint": loaded.fingerprint,
-                           "procedure": PROCEDURE, "params": params,
-                           "tabpar": tabpar_version()}, sort_keys=True)
+                           "procedure": procedure.key, "tabpar": tabpar_version(),
+                           "code": preparation_code_digest()},
+                          sort_keys=True)
     key = hashlib.sha256(key_text.encode()).hexdigest()[:16]
     folder = (cache_dir or cache_root()) / "prepared" / f"{task.name}-{key}"
     meta_path = folder / "meta.json"
@@ -117,18 +167,42 @@ def prepare_task(task: Task, cache_dir: Path | None = None) -> PreparedTask:
     split = split_rows(loaded, target)
     features = loaded.features
     _check_finite(features, task)
-    prep = BaselinePrep(**params).fit(features.iloc[split.train])
-    arrays = {
-        "X_train": prep.transform(features.iloc[split.train]),
-        "X_holdout": prep.transform(features.iloc[split.holdout]),
-        "y_train": target.values[split.train],
-        "y_holdout": target.values[split.holdout],
-        "row_id": split.holdout,
-    }
+    train, holdout = features.iloc[split.train], features.iloc[split.holdout]
+    transformer = procedure.build(task)
+    try:
+        transformer.fit(train)
+        X_train = _as_features(transformer.transform(train), len(train), procedure, task,
+                               "training")
+        X_hold = _as_features(transformer.transform(holdout), len(holdout), procedure, task,
+                              "holdout")
+    except UserError:
+        raise
+    except Exception as exc:
+        if not procedure.user_code:
+            raise
+        raise UserError(f"Procedure '{procedure.name}' failed on task '{task.name}': "
+                        f"{exc.__class__.__name__}: {exc}") from None
+    if X_train.shape[1] != X_hold.shape[1]:
+        raise UserError(f"Procedure '{procedure.name}' made {X_train.shape[1]} features for the "
+                        f"training rows but {X_hold.shape[1]} for the holdout rows of task "
+                        f"'{task.name}'; it must learn its columns in fit.")
+    leakage = (None if procedure.key == builtin().key
+               else _leakage_check(transformer, train, holdout, X_train, X_hold))
+    if hasattr(transformer, "get_feature_names_out"):
+        try:
+            names = [str(n) for n in transformer.get_feature_names_out()]
+        except Exception:  # a user transformer may not support it after all
+            names = [f"f{i}" for i in range(X_train.shape[1])]
+    else:
+        names = [f"f{i}" for i in range(X_train.shape[1])]
+    arrays = {"X_train": X_train, "X_holdout": X_hold,
+              "y_train": target.values[split.train], "y_holdout": target.values[split.holdout],
+              "row_id": split.holdout}
     meta = {"fingerprint": loaded.fingerprint, "classes": [_plain(c) for c in target.classes],
-            "feature_names": [str(n) for n in prep.get_feature_names_out()],
-            "n_train": len(split.train), "n_holdout": len(split.holdout),
-            "split_description": split.description, "notes": loaded.notes + split.notes}
+            "feature_names": names, "n_train": len(split.train),
+            "n_holdout": len(split.holdout), "split_description": split.description,
+            "notes": loaded.notes + split.notes, "procedure": procedure.name,
+            "leakage": leakage}
     tmp = folder.with_name(folder.name + f".tmp{os.getpid()}")
     tmp.mkdir(parents=True, exist_ok=True)
     for name, array in arrays.items():
@@ -240,6 +314,7 @@ class RunResult:
     tasks: dict  # task name → PreparedTask.summary() plus "models": {model: stats}
     interrupted: bool = False
     failures: list = field(default_factory=list)  # rows of jobs that did not finish ok
+    task_errors: dict = field(default_factory=dict)  # task → why a user procedure failed on it
 
     def to_dict(self) -> dict:
         return {"out": str(self.out), "suite": self.suite, "jobs": self.jobs, "ok": self.ok,
@@ -287,6 +362,7 @@ def default_out(suite_name: str) -> Path:
 
 def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
               threads: int) -> list[dict]:
+    """One job per (task, model, seed); ``seeds`` are the seeds themselves."""
     jobs = []
     for p in prepared:
         t = p.task
@@ -296,18 +372,21 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
                              "lower_is_better": t.lower_is_better, "type": t.type,
                              "classes": [str(c) for c in p.classes],
                              "log_target": t.log_target, "fingerprint": p.fingerprint,
-                             "procedure": PROCEDURE, "threads": threads,
+                             "procedure": p.procedure, "threads": threads,
                              "folder": str(p.folder),
                              "cost": MODELS[model].cost * p.n_train * len(p.feature_names)})
     return jobs
 
 
 def _check_compatible(meta: dict | None, suite: Suite, prepared: list[PreparedTask],
-                      out: Path) -> dict:
+                      out: Path, procedure: str) -> dict:
     new = {"format": STORE_FORMAT, "suite": suite.name, "suite_path": str(suite.path),
-           "tasks": {p.task.name: p.summary() for p in prepared}}
+           "procedure": procedure, "tasks": {p.task.name: p.summary() for p in prepared}}
     if meta is None:
         return new
+    if meta.get("procedure", "builtin") != procedure:
+        raise UserError(f"{out} holds results of procedure '{meta.get('procedure')}', not "
+                        f"'{procedure}'; use another --out.")
     if meta.get("format") != STORE_FORMAT:
         raise UserError(f"{out} was written by an incompatible tabpar version (results format "
                         f"{meta.get('format')}, this one reads {STORE_FORMAT}); use another "
@@ -332,12 +411,17 @@ def _check_compatible(meta: dict | None, suite: Suite, prepared: list[PreparedTa
 def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seeds: int = 3,
               out: str | Path | None = None, workers: int | None = None,
               progress: bool = False, on_event=None,
-              job_timeout: float | None = None) -> RunResult:
-    """Run tasks × models × seeds (seeds 0..K-1) and append every finished job to OUT.
+              job_timeout: float | None = None, procedure: Procedure | None = None,
+              seed_offset: int = 0) -> RunResult:
+    """Run tasks × models × seeds (seeds ``seed_offset`` .. ``seed_offset + K - 1``) and
+    append every finished job to OUT.
 
+    ``procedure``: the preprocessing (default: the built-in baseline). A user procedure that
+    fails on a task is recorded for that task (``RunResult.task_errors``) and the rest go on.
     Returns a RunResult; per task and model the mean/std of the holdout score over seeds, in
     the task metric's own units and direction (``lower_is_better`` says which).
     """
+    procedure = procedure or builtin()
     suite = suite if isinstance(suite, Suite) else load_suite(suite)
     selected = suite.select(tasks)
     model_names = check_models(models)
@@ -356,17 +440,23 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
     store = ResultsStore(out)
     say = on_event or (lambda message: None)
 
-    prepared = []
+    prepared, task_errors = [], {}
     for task in selected:
         say(f"preparing {task.name}")
-        prepared.append(prepare_task(task))
+        try:
+            prepared.append(prepare_task(task, procedure=procedure))
+        except UserError as exc:
+            if not procedure.user_code:
+                raise
+            task_errors[task.name] = str(exc)
     store.open_for_writing()
     try:
-        meta = _check_compatible(store.read_meta(), suite, prepared, out)
+        meta = _check_compatible(store.read_meta(), suite, prepared, out, procedure.name)
         meta["versions"] = library_versions()
         meta["cores"], meta["workers"], meta["threads_per_model"] = cores, workers, threads
         store.write_meta(meta)
-        jobs = plan_jobs(prepared, model_names, list(range(seeds)), threads)
+        jobs = plan_jobs(prepared, model_names, list(range(seed_offset, seed_offset + seeds)),
+                         threads)
         done = {(r["task"], r["model"], r["seed"]) for r in store.rows()
                 if r.get("status") == "ok"}
         todo = [j for j in jobs if (j["task"], j["model"], j["seed"]) not in done]
@@ -378,7 +468,9 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         bar.close()
     finally:
         store.close()
-    return _summarise(out, suite.name, jobs, reused, prepared, store, interrupted)
+    result = _summarise(out, suite.name, jobs, reused, prepared, store, interrupted)
+    result.task_errors = task_errors
+    return result
 
 
 def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict) -> None:

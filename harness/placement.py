@@ -17,10 +17,12 @@ import numpy as np
 import pandas as pd
 
 from .errors import UserError
+from .leaderboard import Leaderboard, load_leaderboard
 from .metrics import get_metric
 from .reference import Reference
 from .runner import load_arrays, prepare_task
 from .sources import read_table
+from .store import align_to
 from .suite import load_suite
 from .zoo import DEFAULT_ENSEMBLES
 
@@ -60,6 +62,89 @@ def competition_rank(metric, score: float, reference_scores) -> int:
     """1-based rank of ``score`` among the reference plus itself; equal scores share a rank."""
     gains = metric.gain(np.asarray(reference_scores, float), score)
     return int(1 + np.sum(gains > 0))
+
+
+LEADERBOARD_KEYS = ("leaderboard_rank", "leaderboard_size", "top_percent",
+                    "leaderboard_percentile")
+
+
+def place_on_leaderboard(score: float, leaderboard: Leaderboard | str,
+                         store: str | Path | None = None) -> dict:
+    """Where ``score`` (in the leaderboard's units) would stand among a leaderboard's entries.
+
+    ``leaderboard``: a Leaderboard, or the name of a stored one (looked up in ``store``).
+    Returns a dict: ``leaderboard_rank`` (1 = best; the place the score would take among the
+    entries, equal scores sharing the better place, as in competition ranking),
+    ``leaderboard_size`` (the entries plus this score, so 1 <= rank <= size),
+    ``leaderboard_entries``, ``top_percent`` (rank / size x 100; smaller is better),
+    ``leaderboard_percentile`` (share 0-100 of the entries the score beats, ties half; larger is
+    better), ``leaderboard_best`` (the best entry), and ``leaderboard_note`` (what the numbers
+    cannot say).
+    """
+    board = (leaderboard if isinstance(leaderboard, Leaderboard)
+             else load_leaderboard(leaderboard, store))
+    if score is None or not np.isfinite(score):
+        raise UserError(f"The score {score!r} is not a finite number.")
+    score = float(score)
+    entries = board.scores
+    # a Leaderboard has the direction-normalised gain these helpers need from a metric
+    rank = competition_rank(board, score, entries)
+    size = len(entries) + 1
+    notes = []
+    if board.kind == "openml":
+        procedure = (board.meta.get("openml_task") or {}).get("estimation_procedure")
+        procedure = procedure or "the task's own estimation procedure"
+        notes.append(f"entries are OpenML run evaluations ({procedure}, over the whole "
+                     f"dataset), not scores on the same holdout as yours, so the rank is "
+                     f"indicative, not a like-for-like comparison")
+        if board.metric == "roc_auc" and (board.meta.get("openml_task") or {}).get(
+                "type") == "multiclass":
+            notes.append("OpenML averages a multiclass AUC over classes differently from "
+                         "tabpar's macro one-vs-rest")
+    elif board.metric is None:
+        notes.append(f"the leaderboard does not record its metric (only that "
+                     f"{'lower' if board.lower_is_better else 'higher'} is better); the rank "
+                     f"means something only for a score in the same metric on the same rows")
+    if size <= 20:
+        notes.append(f"with {len(entries)} entries one place moves top_percent by "
+                     f"{100 / size:.0f} points")
+    return {
+        "leaderboard": board.name, "leaderboard_task": board.task,
+        "leaderboard_rank": rank, "leaderboard_size": size,
+        "leaderboard_entries": len(entries), "top_percent": 100.0 * rank / size,
+        "leaderboard_percentile": percentile_of(board, score, entries),
+        "leaderboard_best": board.best, "leaderboard_lower_is_better": board.lower_is_better,
+        "leaderboard_note": "; ".join(notes),
+    }
+
+
+def leaderboard_lines(numbers: dict) -> list[str]:
+    """``place_on_leaderboard``'s answer as indented text lines."""
+    lines = [f"  leaderboard {numbers['leaderboard']}: rank {numbers['leaderboard_rank']} of "
+             f"{numbers['leaderboard_size']} (top {numbers['top_percent']:.1f}%) · beats "
+             f"{numbers['leaderboard_percentile']:.1f}% of its "
+             f"{numbers['leaderboard_entries']} entries (ties half) · best entry "
+             f"{numbers['leaderboard_best']:.4g}"]
+    if numbers.get("leaderboard_note"):
+        lines.append(f"  leaderboard caution: {numbers['leaderboard_note']}")
+    return lines
+
+
+def _check_leaderboard_fits(board: Leaderboard, task, metric) -> None:
+    """UserError unless ``board`` ranks scores of suite task ``task`` in its metric."""
+    if board.task not in (task.name, task.source):
+        raise UserError(f"Leaderboard '{board.name}' is for task '{board.task}', not "
+                        f"'{task.name}'; choose a leaderboard of this task (tabpar leaderboard "
+                        f"list).")
+    if board.metric is not None and board.metric != metric.name:
+        raise UserError(f"Leaderboard '{board.name}' ranks {board.metric}, but task "
+                        f"'{task.name}' is scored on {metric.name}; choose a leaderboard in "
+                        f"{metric.name}.")
+    if board.lower_is_better != metric.lower_is_better:
+        raise UserError(f"Leaderboard '{board.name}' ranks scores where "
+                        f"{'lower' if board.lower_is_better else 'higher'} is better, but "
+                        f"task '{task.name}' is scored on {metric.name}; its scores are in "
+                        f"another metric.")
 
 
 @dataclass
@@ -116,7 +201,12 @@ class Placement:
         ]
         if self.skill is None and self.skill_note:
             lines.append(f"  skill: {self.skill_note}")
-        for key, value in self.extra.items():
+        extra = dict(self.extra)
+        if "leaderboard_rank" in extra:
+            lines.extend(leaderboard_lines(extra))
+            extra = {k: v for k, v in extra.items() if not k.startswith("leaderboard")
+                     and k != "top_percent"}
+        for key, value in extra.items():
             lines.append(f"  {key}: {value}")
         return "\n".join(lines)
 
@@ -172,11 +262,11 @@ def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: 
 
 def _align(ids, prediction, row_id, folder):
     """Reference predictions reordered to ``row_id``."""
-    position = pd.Index(ids).get_indexer(row_id)
-    if (position < 0).any():
+    aligned = align_to(ids, prediction, row_id)
+    if aligned is None:
         raise UserError(f"The stored predictions in {folder} do not cover the task's holdout "
                         f"rows; rebuild the reference.")
-    return np.asarray(prediction)[position]
+    return aligned
 
 
 def _check_fingerprint(ref: Reference, name: str, fingerprint: str, force: bool) -> None:
@@ -189,8 +279,13 @@ def _check_fingerprint(ref: Reference, name: str, fingerprint: str, force: bool)
 
 def place(task: str, score: float | None = None, predictions: str | Path | None = None,
           suite: str | None = None, reference: str | Path = "default",
-          tolerance: float = DEFAULT_TOLERANCE, force: bool = False) -> Placement:
-    """Place a holdout score (or a predictions file, scored here) on a suite task."""
+          tolerance: float = DEFAULT_TOLERANCE, force: bool = False,
+          leaderboard: Leaderboard | str | None = None) -> Placement:
+    """Place a holdout score (or a predictions file, scored here) on a suite task.
+
+    ``leaderboard`` (a Leaderboard or a stored name): also place the score on it; the numbers of
+    ``place_on_leaderboard`` go into ``Placement.extra``.
+    """
     if (score is None) == (predictions is None):
         raise UserError("Give exactly one of --score and --predictions.")
     ref = Reference(reference)
@@ -198,6 +293,11 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
     metric = get_metric(tref.metric)
     suite_obj = load_suite(suite or ref.suite)
     definition = suite_obj.task(task)
+    board = None
+    if leaderboard is not None:  # checked before the slow part, so a mistake fails fast
+        board = (leaderboard if isinstance(leaderboard, Leaderboard)
+                 else load_leaderboard(leaderboard))
+        _check_leaderboard_fits(board, definition, metric)
     paired = predictions is not None
     user = None
     # the holdout rows are needed for the bootstrap band even when only a score is given
@@ -254,6 +354,7 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
                                      np.sum(np.array(others) == diffs[task])) / len(others))
                       if others else None)
     message = _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance)
+    extra = place_on_leaderboard(score, board) if board is not None else {}
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
         percentile=percentile_of(metric, score, runs),
@@ -262,7 +363,7 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
         skill=skill, skill_note=skill_note, noise=float(noise), seed_spread=tref.seed_spread,
         paired=paired, verdict=verdict, difficulty_percentile=difficulty_pct, message=message,
         tolerance=tolerance, reference=str(ref.folder), model_means=dict(tref.means),
-        reference_scores={m: list(v) for m, v in tref.scores.items()})
+        reference_scores={m: list(v) for m, v in tref.scores.items()}, extra=extra)
 
 
 def _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance) -> str:

@@ -15,13 +15,13 @@ PALETTE = {"naive": "#999999", "linear": "#CC79A7", "rf": "#009E73", "et": "#56B
 USER_COLOUR = "#000000"
 
 
-def _figure(width, height):
+def _figure(width, height, **grid):
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    return plt.subplots(figsize=(width, height), dpi=120)
+    return plt.subplots(figsize=(width, height), dpi=120, **grid)
 
 
 def _save(fig, path: Path) -> Path:
@@ -45,11 +45,18 @@ def _direction(lower_is_better: bool) -> str:
     return "← better (lower)" if lower_is_better else "better (higher) →"
 
 
-def placement_plot(placement, path) -> Path:
+def placement_plot(placement, path, leaderboard=None) -> Path:
     """The task's reference scores per model (a point per seed), naive and best as lines, the
-    best default's noise band shaded, and the placed score marked."""
+    best default's noise band shaded, and the placed score marked. With a ``leaderboard`` (a
+    harness.leaderboard.Leaderboard), a second panel shows its entries as a ranked curve."""
     models = [m for m in MODELS if m in placement.reference_scores]
-    fig, ax = _figure(8, 0.55 * len(models) + 2.2)
+    height = 0.55 * len(models) + 2.2
+    if leaderboard is None:
+        fig, ax = _figure(8, height)
+    else:
+        fig, (ax, board_ax) = _figure(13.5, max(height, 4.0), ncols=2,
+                                      gridspec_kw={"width_ratios": [3, 2], "wspace": 0.3})
+        leaderboard_panel(board_ax, leaderboard, placement.score)
     rng = np.random.default_rng(0)
     for i, model in enumerate(models):
         scores = np.asarray(placement.reference_scores[model], float)
@@ -80,6 +87,33 @@ def placement_plot(placement, path) -> Path:
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
               frameon=False)
     return _save(fig, path)
+
+
+def leaderboard_panel(ax, leaderboard, score: float) -> None:
+    """A leaderboard's entries as a ranked curve (rank 1 = best at the left), the placed score
+    as a line across it and a marker at the rank it would take."""
+    from .placement import place_on_leaderboard
+
+    ranked = leaderboard.ranked()
+    where = place_on_leaderboard(score, leaderboard)
+    ranks = np.arange(1, len(ranked) + 1)
+    ax.plot(ranks, ranked, color="#0072B2", linewidth=1.4, zorder=2,
+            marker="o" if len(ranked) <= 60 else None, markersize=3.5,
+            label=f"entries ({len(ranked)}), best first")
+    ax.axhline(score, color=USER_COLOUR, linewidth=1.2, linestyle="--", zorder=3)
+    ax.scatter([where["leaderboard_rank"]], [score], marker="D", s=70, color=USER_COLOUR,
+               zorder=4, label=f"placed score {score:.4g}: rank {where['leaderboard_rank']} of "
+                               f"{where['leaderboard_size']}")
+    if len(ranked) > 200:  # thousands of runs: ranks are easier to read on a log axis
+        ax.set_xscale("log")
+    ax.set_xlabel("rank on the leaderboard (1 = best)")
+    ax.set_ylabel(f"{leaderboard.score_column}  "
+                  f"({'lower' if leaderboard.lower_is_better else 'higher'} is better)")
+    ax.set_title(f"leaderboard {leaderboard.name}\ntop {where['top_percent']:.1f}% · beats "
+                 f"{where['leaderboard_percentile']:.1f}% of its entries", fontsize=11)
+    ax.grid(alpha=0.3)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=1, fontsize=8,
+              frameon=False)
 
 
 def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> Path:
@@ -121,4 +155,35 @@ def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> 
     ax.grid(axis="x", alpha=0.3)
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=4, fontsize=8,
               frameon=False)
+    return _save(fig, path)
+
+
+def forest_plot(comparison, path) -> Path:
+    """One row per task: delta and its 95% band, a zero line, wins/ties/losses in the title."""
+    rows = [t for t in comparison.tasks if t.delta is not None]
+    if not rows:
+        raise UserError("No task has a delta to plot (every task failed or had no scale).")
+    fig, ax = _figure(8, 0.45 * len(rows) + 2.2)
+    colours = {"better": "#009E73", "worse": "#D55E00", "same": "#666666"}
+    for i, t in enumerate(rows):
+        colour = colours.get(t.call, "#666666")
+        ax.plot([t.low, t.high], [i, i], color=colour, linewidth=2.2, solid_capstyle="butt")
+        ax.scatter([t.delta], [i], color=colour, edgecolor="black", s=46, zorder=3)
+    for call, colour in colours.items():
+        ax.scatter([], [], color=colour, edgecolor="black", s=46, label=call)
+    ax.axvline(0, color="black", linewidth=1)
+    if comparison.tolerance:
+        ax.axvspan(-comparison.tolerance, comparison.tolerance, color="#999999", alpha=0.15,
+                   label=f"tolerance ±{comparison.tolerance:g}")
+    ax.set_yticks(range(len(rows)))
+    ax.set_yticklabels([f"{t.task}{' (leak)' if t.leakage else ''}" for t in rows])
+    ax.invert_yaxis()
+    ax.set_xlabel("delta: candidate's gain over baseline / baseline's gain over naive "
+                  "(better →)")
+    verdict = "REGRESSION" if comparison.regression else "no regression"
+    ax.set_title(f"{comparison.candidate} vs {comparison.baseline}"
+                 f"{' (A/A)' if comparison.aa else ''}\nwins {comparison.wins} · ties "
+                 f"{comparison.ties} · losses {comparison.losses} · {verdict}", fontsize=11)
+    ax.grid(axis="x", alpha=0.3)
+    ax.legend(loc="lower right", fontsize=8)
     return _save(fig, path)

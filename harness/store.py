@@ -169,6 +169,14 @@ def read_predictions(path: Path) -> tuple[np.ndarray, np.ndarray]:
     return row_id, frame[cols].to_numpy()
 
 
+def align_to(ids: np.ndarray, prediction: np.ndarray, row_id: np.ndarray):
+    """``prediction`` (stored in ``ids`` order) reordered to ``row_id``; None if any is absent."""
+    position = pd.Index(ids).get_indexer(row_id)
+    if (position < 0).any():
+        return None
+    return np.asarray(prediction)[position]
+
+
 def _json_default(value):
     if isinstance(value, (np.integer,)):
         return int(value)

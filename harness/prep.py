@@ -20,6 +20,8 @@ import pandas as pd
 from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.utils.validation import check_is_fitted
 
+from .sources import to_datetimes
+
 CALENDAR_FIELDS = ("year", "month", "week", "day", "day_of_week", "day_of_year", "is_month_start",
                    "is_month_end", "is_quarter_start", "is_quarter_end", "is_year_start",
                    "is_year_end", "elapsed_days")
@@ -48,6 +50,15 @@ def calendar_fields(dates: pd.Series) -> np.ndarray:
         else:
             out[:, j] = values.to_numpy(dtype=np.float64, na_value=np.nan)
     return out
+
+
+def _sorted_levels(values) -> list:
+    """Numbers in numeric order, anything else by its text (mixed types: numbers first)."""
+    def key(v):
+        if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool):
+            return (0, float(v), "")
+        return (1, 0.0, str(v))
+    return sorted(values, key=key)
 
 
 def _is_date(series: pd.Series) -> bool:
@@ -95,7 +106,8 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
         dates = set(self.date_columns or ())
         for col in dates & set(X.columns):
             if not _is_date(X[col]):
-                X = X.assign(**{col: pd.to_datetime(X[col], errors="coerce")})
+                # unparseable text becomes a missing date (the loaders reject it with a message)
+                X = X.assign(**{col: to_datetimes(X[col])[0]})
         return X
 
     def fit(self, X, y=None):
@@ -125,7 +137,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                     np.zeros(fields.shape[1])
                 self.medians_[col] = np.where(np.isnan(med), 0.0, med)
                 names += [f"{col}__{f}" for f in CALENDAR_FIELDS]
-            elif _is_numeric(series):
+            elif _is_numeric(series) and col not in ordinal:
                 self.roles_[col] = "numeric"
                 values = series.to_numpy(dtype=np.float64, na_value=np.nan)
                 gaps = bool(np.isnan(values).any())
@@ -140,8 +152,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 elif isinstance(series.dtype, pd.CategoricalDtype) and series.dtype.ordered:
                     levels = list(series.dtype.categories)
                 else:
-                    seen = pd.unique(series.dropna().to_numpy(dtype=object))
-                    levels = sorted(seen, key=lambda v: (str(type(v)), str(v)))
+                    levels = _sorted_levels(pd.unique(series.dropna().to_numpy(dtype=object)))
                 self.categories_[col] = pd.Index(levels, dtype=object)
                 if 0 < len(levels) <= self.one_hot_max_levels:
                     self.roles_[col] = "one_hot"

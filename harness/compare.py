@@ -25,7 +25,8 @@ from .errors import UserError
 from .metrics import get_metric
 from .procedures import builtin, resolve_procedure
 from .reference import published_root
-from .runner import library_versions, load_arrays, prepare_task, run_suite
+from .runner import (library_versions, load_arrays, preparation_code_digest, prepare_task,
+                     run_suite)
 from .store import (RUN_FILE, ResultsStore, align_to, atomic_write_text, load_results,
                     read_predictions)
 from .suite import Task, load_suite
@@ -203,6 +204,9 @@ def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, 
     keep = keep[[meta["tasks"].get(t, {}).get("fingerprint") == current[t]
                  for t in keep["task"]]]
     keep = keep[[v == versions for v in keep["versions"]]]
+    if "code" not in keep:
+        return 0
+    keep = keep[keep["code"] == preparation_code_digest()]  # same preparing code too
     if keep.empty:
         return 0
     store = ResultsStore(base_out)
@@ -262,6 +266,9 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
                          seeds=seeds, out=cand_dir, workers=workers, progress=progress,
                          procedure=cand_proc, seed_offset=offset)
 
+    if len(cand_run.task_errors) == len(selected):
+        first = next(iter(cand_run.task_errors.values()))
+        raise UserError(f"{first} (it failed on every task compared).")
     base_rows, cand_rows = load_results(base_dir), load_results(cand_dir)
     base_seeds = sorted(set(base_rows["seed"]))[:seeds]
     cand_seeds = list(range(offset, offset + seeds))

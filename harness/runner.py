@@ -271,7 +271,7 @@ def execute_job(job: dict) -> dict:
     row = {"task": job["task"], "model": job["model"], "seed": job["seed"],
            "metric": job["metric"], "lower_is_better": job["lower_is_better"],
            "fingerprint": job["fingerprint"], "procedure": job["procedure"],
-           "threads": job["threads"], "started_at": started, "score": None,
+           "code": job["code"], "threads": job["threads"], "started_at": started, "score": None,
            "train_score": None, "fit_seconds": None, "predict_seconds": None, "error": None}
     prediction = None
     try:
@@ -373,6 +373,7 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
                              "classes": [str(c) for c in p.classes],
                              "log_target": t.log_target, "fingerprint": p.fingerprint,
                              "procedure": p.procedure, "threads": threads,
+                             "code": preparation_code_digest(),
                              "folder": str(p.folder),
                              "cost": MODELS[model].cost * p.n_train * len(p.feature_names)})
     return jobs
@@ -488,7 +489,7 @@ def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict) ->
 def _lost_row(job: dict, reason: str, status: str) -> dict:
     now = datetime.now(timezone.utc).isoformat(timespec="seconds")
     row = {k: job[k] for k in ("task", "model", "seed", "metric", "lower_is_better",
-                               "fingerprint", "procedure", "threads")}
+                               "fingerprint", "procedure", "code", "threads")}
     row.update(status=status, error=reason, score=None, train_score=None, fit_seconds=None,
                predict_seconds=None, started_at=now, finished_at=now)
     return {"row": row, "prediction": None}

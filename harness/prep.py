@@ -7,7 +7,8 @@
 - numeric columns → as they are, gaps filled with the training median, plus a 0/1 missing flag
   for each column that had gaps in the training rows (as SimpleImputer(add_indicator=True)).
 
-Nothing else. Output is a float32 array (what the tree libraries use internally).
+Nothing else. Output is a float32 array (what the tree libraries use internally), in
+column-major order.
 
 The switches ``calendar``, ``missing_flags``, ``fill`` and ``one_hot_max_levels`` exist for
 variants that ``tabpar compare`` tests against the built-in procedure; their defaults are the
@@ -61,6 +62,50 @@ def _sorted_levels(values) -> list:
     return sorted(values, key=key)
 
 
+def median_from_counts(values: np.ndarray, counts: np.ndarray) -> float:
+    """The median of ``values`` each repeated ``counts`` times, exactly as np.median would give
+    on the repeated rows (the mean of the two middle values for an even count); NaN if empty."""
+    order = np.argsort(values, kind="stable")
+    values, counts = values[order], counts[order]
+    total = int(counts.sum())
+    if total == 0:
+        return float("nan")
+    ends = np.cumsum(counts)
+    lower = values[np.searchsorted(ends, (total - 1) // 2, side="right")]
+    upper = values[np.searchsorted(ends, total // 2, side="right")]
+    return float((lower + upper) / 2)
+
+
+def _date_fields(dates: pd.Series):
+    """(per-row fields, per-distinct-date fields, their row counts) — calendar_fields worked
+    out on the distinct dates only; missing dates are NaN rows."""
+    codes, uniques = pd.factorize(dates, use_na_sentinel=True)
+    fields = calendar_fields(pd.Series(uniques))
+    if len(uniques) == 0:  # every date missing
+        return (np.full((len(dates), len(CALENDAR_FIELDS)), np.nan), fields,
+                np.zeros(0, dtype=np.int64))
+    rows = fields[np.maximum(codes, 0)]
+    rows[codes < 0] = np.nan
+    counts = np.bincount(codes[codes >= 0], minlength=len(uniques))
+    return rows, fields, counts
+
+
+def _numeric(series: pd.Series) -> np.ndarray:
+    return series.to_numpy(dtype=np.float64, na_value=np.nan)
+
+
+def _column_median(series: pd.Series, values: np.ndarray, gap: np.ndarray) -> float:
+    """Median of the non-missing values (NaN if none), by counting for small-range integers."""
+    if pd.api.types.is_integer_dtype(series) and not gap.any() and len(values):
+        ints = series.to_numpy()
+        low, high = int(ints.min()), int(ints.max())
+        if high - low < 1 << 20:
+            counts = np.bincount(ints - low)
+            return median_from_counts(np.arange(len(counts), dtype=float) + low, counts)
+    known = values[~gap] if gap.any() else values
+    return float(np.median(known)) if len(known) else float("nan")
+
+
 def _is_date(series: pd.Series) -> bool:
     return pd.api.types.is_datetime64_any_dtype(series)
 
@@ -110,60 +155,19 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 X = X.assign(**{col: to_datetimes(X[col])[0]})
         return X
 
+    # Each column is factorised once (pandas' hash table): codes per row plus its few distinct
+    # values. Category codes and calendar fields are then worked out on the distinct values
+    # alone and spread to the rows by indexing, which is what makes this fast on large frames.
+
     def fit(self, X, y=None):
         """Learn codes, medians and which columns get missing flags, from these rows only."""
-        if self.fill not in ("median", "mean"):
-            raise ValueError(f"fill must be 'median' or 'mean', not {self.fill!r}")
-        stat = np.nanmedian if self.fill == "median" else np.nanmean
-        X = self._frame(X)
-        self.feature_names_in_ = np.asarray([str(c) for c in X.columns], dtype=object)
-        self.n_features_in_ = X.shape[1]
-        ordinal = dict(self.ordinal or {})
-        self.roles_ = {}
-        self.categories_ = {}
-        self.medians_ = {}
-        self.flagged_ = []
-        names = []
-        for col in X.columns:
-            series = X[col]
-            if _is_date(series) and not self.calendar:
-                self.roles_[col] = "dropped"
-                continue
-            if _is_date(series):
-                self.roles_[col] = "date"
-                fields = calendar_fields(series)
-                gaps = bool(np.isnan(fields[:, 0]).any())
-                med = stat(fields, axis=0) if not np.isnan(fields).all() else \
-                    np.zeros(fields.shape[1])
-                self.medians_[col] = np.where(np.isnan(med), 0.0, med)
-                names += [f"{col}__{f}" for f in CALENDAR_FIELDS]
-            elif _is_numeric(series) and col not in ordinal:
-                self.roles_[col] = "numeric"
-                values = series.to_numpy(dtype=np.float64, na_value=np.nan)
-                gaps = bool(np.isnan(values).any())
-                med = stat(values) if not np.isnan(values).all() else 0.0
-                self.medians_[col] = float(med)
-                names.append(str(col))
-            else:
-                self.roles_[col] = "category"
-                gaps = False  # missing is its own code (0), no flag needed
-                if col in ordinal:
-                    levels = list(ordinal[col])
-                elif isinstance(series.dtype, pd.CategoricalDtype) and series.dtype.ordered:
-                    levels = list(series.dtype.categories)
-                else:
-                    levels = _sorted_levels(pd.unique(series.dropna().to_numpy(dtype=object)))
-                self.categories_[col] = pd.Index(levels, dtype=object)
-                if 0 < len(levels) <= self.one_hot_max_levels:
-                    self.roles_[col] = "one_hot"
-                    names += [f"{col}=={level}" for level in levels]
-                else:
-                    names.append(str(col))
-            if gaps and self.missing_flags:
-                self.flagged_.append(col)
-        names += [f"{col}{MISSING_SUFFIX}" for col in self.flagged_]
-        self.feature_names_out_ = np.asarray(names, dtype=object)
+        self._learn(self._frame(X))
         return self
+
+    def fit_transform(self, X, y=None, **fit_params):
+        """``fit(X).transform(X)`` sharing the per-column work between the two."""
+        X = self._frame(X)
+        return self._encode(X, self._learn(X))
 
     def transform(self, X):
         """Float32 array (n_rows, len(get_feature_names_out())) of prepared features."""
@@ -173,37 +177,103 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                         r != "dropped"]
         if missing_cols:
             raise ValueError(f"columns seen in fit are missing: {missing_cols[:5]}")
-        n = len(X)
-        out = np.empty((n, len(self.feature_names_out_)), dtype=np.float32)
-        j = 0
-        flags = {}
+        return self._encode(X, {})
+
+    def _learn(self, X: pd.DataFrame) -> dict:
+        if self.fill not in ("median", "mean"):
+            raise ValueError(f"fill must be 'median' or 'mean', not {self.fill!r}")
+        self.feature_names_in_ = np.asarray([str(c) for c in X.columns], dtype=object)
+        self.n_features_in_ = X.shape[1]
+        ordinal = dict(self.ordinal or {})
+        self.roles_, self.categories_, self.medians_, self.flagged_ = {}, {}, {}, []
+        names, work = [], {}
+        for col in X.columns:
+            series = X[col]
+            if _is_date(series) and not self.calendar:
+                self.roles_[col] = "dropped"
+                continue
+            if _is_date(series):
+                self.roles_[col] = "date"
+                rows, distinct, counts = _date_fields(series)
+                work[col] = rows
+                gaps = bool(counts.sum() < len(series))
+                if self.fill == "median":
+                    stat = [median_from_counts(distinct[:, k], counts)
+                            for k in range(distinct.shape[1])]
+                else:
+                    stat = (counts @ distinct) / max(counts.sum(), 1)
+                self.medians_[col] = np.nan_to_num(np.asarray(stat, float), nan=0.0)
+                names += [f"{col}__{f}" for f in CALENDAR_FIELDS]
+            elif _is_numeric(series) and col not in ordinal:
+                self.roles_[col] = "numeric"
+                values = _numeric(series)
+                work[col] = values
+                gap = np.isnan(values)
+                gaps = bool(gap.any())
+                stat = (_column_median(series, values, gap) if self.fill == "median"
+                        else float(np.nanmean(values)) if (~gap).any() else 0.0)
+                self.medians_[col] = 0.0 if np.isnan(stat) else stat
+                names.append(str(col))
+            else:
+                gaps = False  # missing is its own code (0), no flag needed
+                codes, uniques = pd.factorize(series, use_na_sentinel=True)
+                if col in ordinal:
+                    levels = list(ordinal[col])
+                elif isinstance(series.dtype, pd.CategoricalDtype) and series.dtype.ordered:
+                    levels = list(series.dtype.categories)
+                else:
+                    levels = _sorted_levels(np.asarray(uniques, dtype=object))
+                self.categories_[col] = pd.Index(levels, dtype=object)
+                work[col] = (codes, uniques)
+                if 0 < len(levels) <= self.one_hot_max_levels:
+                    self.roles_[col] = "one_hot"
+                    names += [f"{col}=={level}" for level in levels]
+                else:
+                    self.roles_[col] = "category"
+                    names.append(str(col))
+            if gaps and self.missing_flags:
+                self.flagged_.append(col)
+        names += [f"{col}{MISSING_SUFFIX}" for col in self.flagged_]
+        self.feature_names_out_ = np.asarray(names, dtype=object)
+        return work
+
+    def _encode(self, X: pd.DataFrame, work: dict) -> np.ndarray:
+        # column-major, so each column is written contiguously (the model libraries take either)
+        out = np.empty((len(X), len(self.feature_names_out_)), dtype=np.float32, order="F")
+        j, flags = 0, {}
         for col, role in self.roles_.items():
             if role == "dropped":
                 continue
-            series = X[col]
             if role == "date":
-                fields = calendar_fields(series)
+                fields = work[col] if col in work else _date_fields(X[col])[0]
                 gap = np.isnan(fields[:, 0])
                 if gap.any():
                     fields[gap] = self.medians_[col]
                 out[:, j:j + fields.shape[1]] = fields
                 j += fields.shape[1]
             elif role == "numeric":
-                values = series.to_numpy(dtype=np.float64, na_value=np.nan)
+                values = work[col] if col in work else _numeric(X[col])
                 gap = np.isnan(values)
-                out[:, j] = np.where(gap, self.medians_[col], values)
+                out[:, j] = values
+                if gap.any():
+                    out[gap, j] = self.medians_[col]
                 j += 1
             else:
-                levels = self.categories_[col]
-                codes = levels.get_indexer(series.to_numpy(dtype=object))  # -1: missing, unseen
+                codes, uniques = work[col] if col in work else pd.factorize(
+                    X[col], use_na_sentinel=True)
+                # learned level index of each distinct value (-1: unseen), then of each row
+                mapped = self.categories_[col].get_indexer(np.asarray(uniques, dtype=object))
+                row_codes = np.where(codes >= 0, mapped[codes], -1) if len(mapped) else \
+                    np.full(len(codes), -1)
                 if role == "one_hot":
-                    block = out[:, j:j + len(levels)]
+                    levels = len(self.categories_[col])
+                    block = out[:, j:j + levels]
                     block[:] = 0
-                    seen = codes >= 0
-                    block[np.flatnonzero(seen), codes[seen]] = 1
-                    j += len(levels)
+                    seen = row_codes >= 0
+                    block[np.flatnonzero(seen), row_codes[seen]] = 1
+                    j += levels
                 else:
-                    out[:, j] = codes + 1
+                    out[:, j] = row_codes + 1  # 0 = missing or unseen
                     j += 1
                 gap = None
             if col in self.flagged_:

@@ -23,7 +23,7 @@ from .reference import Reference
 from .runner import load_arrays, prepare_task
 from .sources import read_table
 from .store import align_to
-from .suite import load_suite
+from .suite import Task, load_suite
 from .zoo import DEFAULT_ENSEMBLES
 
 VERDICTS = ("worse-than-naive", "below-baseline", "at-baseline", "above-baseline")
@@ -97,6 +97,7 @@ def place_on_leaderboard(score: float, leaderboard: Leaderboard | str,
         notes.append(f"entries are OpenML run evaluations ({procedure}, over the whole "
                      f"dataset), not scores on the same holdout as yours, so the rank is "
                      f"indicative, not a like-for-like comparison")
+        # OpenML's multiclass AUC is a class-frequency-weighted average (from memory)
         if board.metric == "roc_auc" and (board.meta.get("openml_task") or {}).get(
                 "type") == "multiclass":
             notes.append("OpenML averages a multiclass AUC over classes differently from "
@@ -105,6 +106,9 @@ def place_on_leaderboard(score: float, leaderboard: Leaderboard | str,
         notes.append(f"the leaderboard does not record its metric (only that "
                      f"{'lower' if board.lower_is_better else 'higher'} is better); the rank "
                      f"means something only for a score in the same metric on the same rows")
+    else:
+        notes.append("the leaderboard does not record the rows its entries were scored on; "
+                     "the rank compares like with like only if they are the same holdout")
     if size <= 20:
         notes.append(f"with {len(entries)} entries one place moves top_percent by "
                      f"{100 / size:.0f} points")
@@ -298,6 +302,33 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
         board = (leaderboard if isinstance(leaderboard, Leaderboard)
                  else load_leaderboard(leaderboard))
         _check_leaderboard_fits(board, definition, metric)
+    placement = place_task(definition, ref, score=score, predictions=predictions,
+                           tolerance=tolerance, force=force)
+    if board is not None:
+        placement.extra.update(place_on_leaderboard(placement.score, board))
+    return placement
+
+
+def difficulty_percentile(difficulty: float, others) -> float | None:
+    """Share (0–100) of ``others`` that ``difficulty`` exceeds, ties half (higher = harder)."""
+    others = np.asarray(list(others), float)
+    if not len(others):
+        return None
+    return float(100.0 * (np.sum(others < difficulty) + 0.5 * np.sum(others == difficulty))
+                 / len(others))
+
+
+def place_task(definition: Task, ref: Reference, score: float | None = None,
+               predictions: str | Path | None = None, tolerance: float = DEFAULT_TOLERANCE,
+               force: bool = False, difficulties: dict | None = None) -> Placement:
+    """Place a score (or predictions) on ``definition`` against the results in ``ref``.
+
+    ``difficulties``: task → difficulty to rank this task's difficulty among (default: the
+    other tasks of ``ref``).
+    """
+    task = definition.name
+    tref = ref.task(task)
+    metric = get_metric(tref.metric)
     paired = predictions is not None
     user = None
     # the holdout rows are needed for the bootstrap band even when only a score is given
@@ -348,13 +379,10 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
         verdict = "at-baseline"
 
     runs = [s for m in tref.scores for s in tref.scores[m]]
-    diffs = ref.difficulties()
-    others = [d for t, d in diffs.items() if t != task]
-    difficulty_pct = (float(100.0 * (np.sum(np.array(others) < diffs[task]) + 0.5 *
-                                     np.sum(np.array(others) == diffs[task])) / len(others))
-                      if others else None)
+    if difficulties is None:
+        difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
+    difficulty_pct = difficulty_percentile(tref.difficulty, difficulties.values())
     message = _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance)
-    extra = place_on_leaderboard(score, board) if board is not None else {}
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
         percentile=percentile_of(metric, score, runs),
@@ -363,7 +391,7 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
         skill=skill, skill_note=skill_note, noise=float(noise), seed_spread=tref.seed_spread,
         paired=paired, verdict=verdict, difficulty_percentile=difficulty_pct, message=message,
         tolerance=tolerance, reference=str(ref.folder), model_means=dict(tref.means),
-        reference_scores={m: list(v) for m, v in tref.scores.items()}, extra=extra)
+        reference_scores={m: list(v) for m, v in tref.scores.items()})
 
 
 def _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance) -> str:

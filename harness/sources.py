@@ -31,6 +31,11 @@ class LoadedTask:
     fingerprint: str  # hash of the source rows the task keeps, as read (before any parsing)
     n_source_rows: int
     notes: list[str] = field(default_factory=list)  # what was done to the rows, for the user
+    row_ids: np.ndarray | None = None  # each frame row's 0-based position in the source
+
+    def __post_init__(self):
+        if self.row_ids is None:
+            self.row_ids = np.arange(len(self.frame), dtype=np.int64)
 
     @property
     def features(self) -> pd.DataFrame:
@@ -274,4 +279,4 @@ def load_task(task: Task) -> LoadedTask:
     if task.holdout.policy == "time":
         _require_column(frame, task.holdout.date, "holdout date", task)
     return LoadedTask(task=task, frame=frame, fingerprint=digest, n_source_rows=n_source,
-                      notes=notes)
+                      notes=notes, row_ids=keep.astype(np.int64))

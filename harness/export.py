@@ -1,8 +1,8 @@
 """Export a task's exact split so anyone can fit their own pipeline on the identical rows.
 
 Writes ``train.csv`` (features + target), ``holdout.csv`` (features only), both with a
-``row_id`` column (the row's position in the task's loaded rows, the id the predictions file and
-the reference use), and ``task.json`` describing the target, metric, direction and how to submit.
+``row_id`` column (the row's 0-based position in the source as read, the id the predictions file
+and the reference use), and ``task.json`` describing the target, metric, direction and how to submit.
 """
 from __future__ import annotations
 
@@ -30,9 +30,10 @@ def _encode(frame: pd.DataFrame, fmt: str) -> bytes:
 
 
 def split_frames(loaded: LoadedTask, split: Split) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """(train with target, holdout without target), each led by ``row_id``."""
+    """(train with target, holdout without target), each led by ``row_id`` (the row's
+    0-based position in the source as read)."""
     frame = loaded.frame.copy()
-    frame.insert(0, "row_id", range(len(frame)))
+    frame.insert(0, "row_id", loaded.row_ids)
     train = frame.iloc[split.train].reset_index(drop=True)
     holdout = frame.iloc[split.holdout].drop(columns=[loaded.task.target]).reset_index(drop=True)
     return train, holdout

@@ -77,7 +77,8 @@ def cmd_run(args) -> int:
     say = (lambda m: print(m, file=sys.stderr)) if progress else None
     result = run_suite(suite=args.suite, tasks=args.tasks, models=args.models,
                        seeds=args.seeds, out=args.out, workers=args.workers,
-                       progress=progress, on_event=say, job_timeout=args.job_timeout)
+                       progress=progress, on_event=say, job_timeout=args.job_timeout,
+                       executor=args.executor, scheduler=args.scheduler)
     if args.json:
         print(json.dumps(result.to_dict(), indent=2))
     elif not args.quiet:
@@ -168,7 +169,7 @@ def cmd_compare(args) -> int:
     result = compare(args.candidate, baseline=args.baseline, suite=args.suite,
                      tasks=args.tasks, models=args.models, seeds=args.seeds,
                      tolerance=args.tolerance, out=args.out, workers=args.workers,
-                     progress=progress)
+                     progress=progress, executor=args.executor, scheduler=args.scheduler)
     forest_plot(result, Path(result.out) / "forest.png")
     if args.plot:
         forest_plot(result, args.plot)
@@ -274,6 +275,44 @@ def cmd_cache(args) -> int:
     return 0
 
 
+def _executor_options(parser) -> None:
+    parser.add_argument("--executor", choices=["local", "dask"], default="local",
+                        help="where jobs run: local worker processes (default) or an existing "
+                             "Dask cluster")
+    parser.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
+                        help="the Dask scheduler's address (with --executor dask)")
+
+
+def cmd_calibrate(args) -> int:
+    from .calibrate import calibrate, export_split, inferred_text
+
+    options = dict(type=args.type, metric=args.metric, positive=args.positive,
+                   dates=args.date, holdout=args.holdout,
+                   holdout_fraction=args.holdout_fraction, holdout_rows=args.holdout_rows,
+                   cutoff=args.cutoff, drop=args.drop)
+    if args.export_split:
+        info = export_split(args.data, args.target, args.export_split, **options)
+        if args.json:
+            print(json.dumps(info, indent=2, default=str))
+            return 0
+        print(f"inferred: {inferred_text(info['inferred'])}")
+        print(f"split: {info['holdout']}")
+        print(f"wrote {Path(args.export_split) / 'train.csv'} ({info['n_train']:,} rows with "
+              f"'{info['target']}'), {Path(args.export_split) / 'holdout.csv'} "
+              f"({info['n_holdout']:,} rows without) and task.json; row_id is each row's "
+              f"0-based position in {args.data}")
+        print(f"{info['metric']} ({'lower' if info['lower_is_better'] else 'higher'} is "
+              f"better); {info['how_to_submit']}")
+        return 0
+    progress = not args.json and sys.stderr.isatty()
+    say = (lambda m: print(f"  {m}", file=sys.stderr)) if progress else None
+    result = calibrate(args.data, args.target, score=args.score, predictions=args.predictions,
+                       seeds=args.seeds, models=args.models, budget=args.budget, out=args.out,
+                       reference=args.reference, on_event=say, **options)
+    print(json.dumps(result.to_dict(), indent=2) if args.json else result)
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="tabpar",
@@ -303,6 +342,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--workers", type=int, default=None,
                      help="parallel worker processes (default: all cores); each model gets "
                           "cores / workers threads")
+    _executor_options(run)
     run.add_argument("--job-timeout", type=float, default=None, metavar="SECONDS",
                      help="stop a job that runs longer and record it as 'timeout' (default: "
                           "no limit)")
@@ -401,6 +441,7 @@ def build_parser() -> argparse.ArgumentParser:
                       help="folder for both runs and the reports (default: "
                            "runs/compare-SUITE-DATE-TIME)")
     comp.add_argument("--workers", type=int, default=None, help="worker processes")
+    _executor_options(comp)
     comp.add_argument("--plot", default=None, help="also write the forest plot to FILE")
     comp.add_argument("--quiet", action="store_true", help="print nothing but errors")
     comp.add_argument("--json", action="store_true", help="print one JSON object")
@@ -478,6 +519,63 @@ def build_parser() -> argparse.ArgumentParser:
                                        "those makes a new entry.")
     cache.add_argument("action", choices=["info", "clear"], help="info or clear")
     cache.set_defaults(func=cmd_cache)
+
+    cal = sub.add_parser(
+        "calibrate", help="place a score on your own table against the baseline on your split",
+        description="Run the baseline procedure and model zoo on your own CSV/Parquet table and "
+                    "split, place your score against it, place the dataset's difficulty among "
+                    "the suite's tasks, and run diagnostics (leakage, shift, split-optimism, "
+                    "learning-curve, conflicting-duplicates) that tell a pipeline mistake from "
+                    "a hard dataset. Options left out are inferred and the output says what "
+                    "was inferred.",
+        epilog="First time: --export-split DIR writes train.csv (with the target) and "
+               "holdout.csv (without), both with row_id (the row's 0-based position in DATA); "
+               "predict holdout.csv and pass the file with --predictions.")
+    cal.add_argument("data", metavar="DATA", help="your table (.csv or .parquet)")
+    cal.add_argument("--target", required=True, metavar="COL", help="the column to predict")
+    cal.add_argument("--type", default=None,
+                     help="regression, binary or multiclass (default: binary/multiclass for a non-numeric target or one with at "
+                          "most 2 distinct values, else regression)")
+    cal.add_argument("--metric", default=None,
+                     help="rmse rmsle mae r2 | accuracy log_loss roc_auc (default: rmse for "
+                          "regression, roc_auc for binary, log_loss for multiclass)")
+    cal.add_argument("--positive", default=None, metavar="CLASS",
+                     help="binary: the class whose probability is scored (default: the "
+                          "minority class)")
+    cal.add_argument("--date", action="extend", nargs="+", default=[], metavar="COL",
+                     help="date columns (calendar fields); the first one orders a time holdout")
+    cal.add_argument("--holdout", default=None,
+                     help="time or random (default: time when --date is given, else random, "
+                          "seed 0)")
+    size = cal.add_mutually_exclusive_group()
+    size.add_argument("--holdout-fraction", type=float, default=None, metavar="F",
+                      help="share of rows held out (default: 0.2)")
+    size.add_argument("--holdout-rows", type=int, default=None, metavar="N",
+                      help="number of rows held out")
+    size.add_argument("--cutoff", default=None, metavar="DATE",
+                      help="time holdout: every row at or after DATE")
+    cal.add_argument("--drop", action="extend", nargs="+", default=[], metavar="COL",
+                     help="columns to leave out (row ids, columns known only after the target)")
+    given = cal.add_mutually_exclusive_group(required=True)
+    given.add_argument("--score", type=float, help="your holdout score in the metric")
+    given.add_argument("--predictions", metavar="FILE",
+                       help="CSV/Parquet with row_id and prediction for every holdout row "
+                            "(binary: the positive class's probability)")
+    given.add_argument("--export-split", metavar="DIR",
+                       help="write the split (train.csv, holdout.csv, task.json) and exit")
+    cal.add_argument("--seeds", type=int, default=1, help="seeds per model (default: 1)")
+    cal.add_argument("--models", type=_csv_list, default=None,
+                     help="comma-separated models (default: the whole zoo; naive always runs)")
+    cal.add_argument("--budget", type=float, default=None, metavar="SECONDS",
+                     help="wall-time bound: models run cheapest first and one that would not "
+                          "fit is skipped (default: none)")
+    cal.add_argument("--out", default=None,
+                     help="output folder (default: runs/calibrate-NAME-DATE-TIME)")
+    cal.add_argument("--reference", default="default",
+                     help="suite reference whose tasks the difficulty is placed among "
+                          "(default: default)")
+    cal.add_argument("--json", action="store_true", help="print one JSON object")
+    cal.set_defaults(func=cmd_calibrate)
 
     suites = sub.add_parser("suites", help="list the built-in suites and their tasks")
     suites.set_defaults(func=cmd_suites)

@@ -28,7 +28,7 @@ from .sources import load_task
 from .split import encode_target, split_rows
 from .store import STORE_FORMAT, ResultsStore, atomic_write_text
 from .suite import Suite, Task, load_suite
-from .workers import LocalPool
+from .workers import DaskPool, LocalPool
 from .zoo import MODELS, build_model, check_models
 
 def tabpar_version() -> str:
@@ -302,7 +302,8 @@ def execute_job(job: dict) -> dict:
            "train_score": None, "fit_seconds": None, "predict_seconds": None, "error": None}
     prediction = None
     try:
-        arrays = load_arrays(job["folder"])
+        # a distributed job carries its arrays; a local one reads them from the cache
+        arrays = job.get("arrays") or load_arrays(job["folder"])
         metric = get_metric(job["metric"])
         task_type, k = job["type"], max(len(job["classes"]), 2)
         X_train, y_train = np.asarray(arrays["X_train"]), np.asarray(arrays["y_train"])
@@ -440,7 +441,8 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
               out: str | Path | None = None, workers: int | None = None,
               progress: bool = False, on_event=None,
               job_timeout: float | None = None, procedure: Procedure | None = None,
-              seed_offset: int = 0) -> RunResult:
+              seed_offset: int = 0, executor: str = "local",
+              scheduler: str | None = None) -> RunResult:
     """Run tasks × models × seeds (seeds ``seed_offset`` .. ``seed_offset + K - 1``) and
     append every finished job to OUT.
 
@@ -448,8 +450,12 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
     fails on a task is recorded for that task (``RunResult.task_errors``) and the rest go on.
     Returns a RunResult; per task and model the mean/std of the holdout score over seeds, in
     the task metric's own units and direction (``lower_is_better`` says which).
+    ``executor="dask"`` sends the jobs to the Dask scheduler at ``scheduler``
+    (``tcp://HOST:PORT``); each model then uses one thread (start workers with as many
+    threads as they have cores to fill them).
     """
     procedure = procedure or builtin()
+    connect_check(scheduler, executor, job_timeout)
     suite = suite if isinstance(suite, Suite) else load_suite(suite)
     selected = suite.select(tasks)
     model_names = check_models(models)
@@ -463,7 +469,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
     if job_timeout is not None and not job_timeout > 0:
         raise UserError(f"--job-timeout must be a positive number of seconds, not "
                         f"{job_timeout!r}.")
-    threads = max(1, cores // workers)
+    threads = 1 if executor == "dask" else max(1, cores // workers)
     out = Path(out) if out is not None else default_out(suite.name)
     store = ResultsStore(out)
     say = on_event or (lambda message: None)
@@ -482,6 +488,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         meta = _check_compatible(store.read_meta(), suite, prepared, out, procedure.name)
         meta["versions"] = library_versions()
         meta["cores"], meta["workers"], meta["threads_per_model"] = cores, workers, threads
+        meta["executor"] = executor if executor == "local" else f"dask {scheduler}"
         store.write_meta(meta)
         jobs = plan_jobs(prepared, model_names, list(range(seed_offset, seed_offset + seeds)),
                          threads)
@@ -492,7 +499,8 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         reused = len(jobs) - len(todo)
         versions = meta["versions"]
         bar = Progress(len(todo), progress)
-        interrupted = _execute(todo, workers, store, versions, prepared, bar, job_timeout)
+        interrupted = _execute(todo, workers, store, versions, prepared, bar, job_timeout,
+                               executor, scheduler)
         bar.close()
     finally:
         store.close()
@@ -522,7 +530,40 @@ def _lost_row(job: dict, reason: str, status: str) -> dict:
     return {"row": row, "prediction": None}
 
 
-def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None) -> bool:
+def _in_memory(job: dict) -> dict:
+    return {k: np.asarray(v) for k, v in load_arrays(job["folder"]).items()}
+
+
+def connect_check(scheduler: str | None, executor: str, job_timeout) -> None:
+    """UserError for a dask executor that cannot work as asked, before any job starts."""
+    if executor not in ("local", "dask"):
+        raise UserError(f"Unknown executor '{executor}'; use local or dask.")
+    if executor == "local":
+        if scheduler:
+            raise UserError("--scheduler needs --executor dask.")
+        return
+    if not scheduler:
+        raise UserError("--executor dask needs --scheduler tcp://HOST:PORT, the address of a "
+                        "running Dask scheduler.")
+    if job_timeout is not None:
+        raise UserError("--job-timeout works with the local executor only (a Dask worker "
+                        "cannot stop one running job); leave it out with --executor dask.")
+    try:
+        import distributed  # noqa: F401
+    except ImportError:
+        raise UserError("--executor dask needs the 'distributed' package: pip install "
+                        "'tabpar[dask]'.") from None
+    from distributed import Client
+
+    try:
+        Client(scheduler, timeout=10, set_as_default=False).close()
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise UserError(f"Cannot reach the Dask scheduler at {scheduler} ({exc.__class__.__name__}); "
+                        f"start one with 'dask scheduler' or check the address.") from None
+
+
+def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
+             executor: str = "local", scheduler: str | None = None) -> bool:
     """Run the jobs, recording each as it finishes; True when interrupted (Ctrl-C/SIGTERM)."""
     by_name = {p.task.name: p for p in prepared}
 
@@ -538,7 +579,10 @@ def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None) ->
 
     previous = signal.signal(signal.SIGTERM, on_term)
     try:
-        if workers == 1 and job_timeout is None:
+        if executor == "dask":
+            DaskPool(execute_job, scheduler, payload=_in_memory,
+                     payload_key=lambda job: job["folder"]).run(todo, on_result, on_lost)
+        elif workers == 1 and job_timeout is None:
             for job in todo:  # in this process: no start-up cost, easy to debug
                 on_result(job, execute_job(job))
         else:

@@ -149,3 +149,50 @@ class LocalPool:
     def _replace(self, worker, kill):
         worker.stop(kill=kill)
         return _Worker(self.function, self.initializer)
+
+
+class DaskPool:
+    """Run jobs on an existing Dask cluster (``distributed``), results back in this process.
+
+    Workers need tabpar installed (the same version) but no data and no cache: each task's
+    prepared arrays are sent to the cluster once (``Client.scatter``) and every job of the task
+    refers to them. ``payload(job)`` returns those arrays for a job; jobs sharing a payload key
+    share one scattered copy.
+    """
+
+    def __init__(self, function, scheduler: str, payload, payload_key, connect_timeout=10):
+        self.function = function
+        self.scheduler = scheduler
+        self.payload = payload
+        self.payload_key = payload_key
+        self.connect_timeout = connect_timeout
+
+    def run(self, jobs, on_result, on_lost) -> None:
+        from distributed import Client, as_completed
+
+        client = Client(self.scheduler, timeout=self.connect_timeout,
+                        set_as_default=False)
+        try:
+            scattered, futures = {}, {}
+            for job in jobs:
+                key = self.payload_key(job)
+                if key not in scattered:
+                    # one remote copy per task, shared by its jobs; hash=False: no content hashing
+                    scattered[key] = client.scatter([self.payload(job)], hash=False)[0]
+                remote_job = dict(job, arrays=scattered[key])
+                futures[client.submit(self.function, remote_job, pure=False)] = job
+            for future in as_completed(futures, loop=client.loop):
+                job = futures[future]
+                try:
+                    result = future.result()
+                except Exception as exc:  # the worker died or the task was lost
+                    on_lost(job, f"the Dask cluster lost the job: {exc.__class__.__name__}: "
+                                 f"{exc}", "failed")
+                    continue
+                on_result(job, result)
+        except BaseException:
+            for future in futures:
+                future.cancel()
+            raise
+        finally:
+            client.close()

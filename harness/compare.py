@@ -226,7 +226,8 @@ def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, 
 def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tasks=None,
             models=None, seeds: int = 3, tolerance: float = 0.0, out=None,
             workers: int | None = None, progress: bool = False, n_boot: int | None = None,
-            seed: int = 0, executor: str = "local", scheduler: str | None = None) -> Comparison:
+            seed: int = 0, executor: str = "local", scheduler: str | None = None,
+            aa_seed_offset: int = AA_SEED_OFFSET) -> Comparison:
     """Compare procedure ``candidate`` with ``baseline`` (a procedure SPEC or a results
     folder) on ``suite``. Deltas are unit-free, positive = the candidate is better."""
     if tolerance < 0:
@@ -262,7 +263,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
                   out=base_dir, workers=workers, progress=progress, procedure=base_proc,
                   executor=executor, scheduler=scheduler)
     cand_dir = out / "candidate"
-    offset = AA_SEED_OFFSET if aa else 0
+    offset = aa_seed_offset if aa else 0
     cand_run = run_suite(suite_obj, tasks=[t.name for t in selected], models=models,
                          seeds=seeds, out=cand_dir, workers=workers, progress=progress,
                          procedure=cand_proc, seed_offset=offset, executor=executor,

@@ -286,3 +286,47 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
     def get_feature_names_out(self, input_features=None):
         check_is_fitted(self, "feature_names_out_")
         return self.feature_names_out_.copy()
+
+
+def _plus_one(values):
+    return np.asarray(values, dtype=np.float64) + 1  # OrdinalEncoder's -1 (missing/unseen) → 0
+
+
+def _as_object(frame):
+    # OrdinalEncoder refuses pd.NA (pandas' nullable string dtype): give it NaN in object columns
+    return frame.astype(object).where(frame.notna(), np.nan)
+
+
+def _calendar_block(frame):
+    return np.hstack([calendar_fields(frame[c]) for c in frame.columns])
+
+
+def sklearn_equivalent(frame: pd.DataFrame, date_columns=()):
+    """The built-in procedure written with scikit-learn parts, for checks and benchmarks.
+
+    A ColumnTransformer of OrdinalEncoder (unknown and missing → -1, then +1) on text columns,
+    SimpleImputer(median, add_indicator=True) on numeric columns, and calendar_fields +
+    SimpleImputer(median) on date columns. It gives BaselinePrep's values (in another column
+    order) except the one missing flag per date column, which it lacks.
+    """
+    from sklearn.compose import ColumnTransformer
+    from sklearn.impute import SimpleImputer
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import FunctionTransformer, OrdinalEncoder
+
+    dates = [c for c in frame.columns if c in set(date_columns) or _is_date(frame[c])]
+    numeric = [c for c in frame.columns if c not in dates and _is_numeric(frame[c])]
+    text = [c for c in frame.columns if c not in dates and c not in numeric]
+    parts = []
+    if dates:
+        parts.append(("dates", make_pipeline(FunctionTransformer(_calendar_block),
+                                             SimpleImputer(strategy="median")), dates))
+    if text:
+        parts.append(("codes", make_pipeline(
+            FunctionTransformer(_as_object),
+            OrdinalEncoder(handle_unknown="use_encoded_value", unknown_value=-1,
+                           encoded_missing_value=-1),
+            FunctionTransformer(_plus_one)), text))
+    if numeric:
+        parts.append(("numeric", SimpleImputer(strategy="median", add_indicator=True), numeric))
+    return ColumnTransformer(parts, sparse_threshold=0.0)

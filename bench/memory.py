@@ -1,0 +1,69 @@
+"""Peak resident memory of the flights task against the in-memory size of its frame
+(target: <= 3x).
+
+Each figure is the peak RSS of a new process (resource.getrusage): (1) load → split → prepare →
+cache the flights task; (2) a full `tabpar run` of flights with the naive floor and LightGBM,
+one worker in-process. Forests are left out of (2): their trees (hundreds of MB) are the
+model's memory, not the harness's.
+
+    python bench/memory.py
+"""
+import subprocess
+import sys
+import tempfile
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from _common import machine  # noqa: E402
+
+PREPARE = """
+import os, resource, tempfile
+os.environ["TABPAR_CACHE"] = tempfile.mkdtemp()
+from harness.runner import prepare_task
+from harness.suite import load_suite
+prepare_task(load_suite("default").task("flights"))
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
+"""
+RUN = """
+import os, resource, tempfile
+os.environ["TABPAR_CACHE"] = tempfile.mkdtemp()
+from harness.runner import run_suite
+run_suite("default", tasks=["flights"], models=["naive", "lgbm"], seeds=1,
+          out=tempfile.mkdtemp(), workers=1)
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
+"""
+BASE = """
+import resource
+import harness.runner, harness.sources, lightgbm, sklearn.ensemble
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
+"""
+
+
+def _peak(code: str) -> int:
+    return int(subprocess.run([sys.executable, "-c", code], check=True, capture_output=True,
+                              text=True).stdout.split()[-1])
+
+
+def main():
+    from harness.sources import load_task
+    from harness.suite import load_suite
+
+    loaded = load_task(load_suite("default").task("flights"))
+    frame_bytes = loaded.frame.memory_usage(deep=True).sum()
+    base = _peak(BASE)
+    prepare = _peak(PREPARE)
+    run = _peak(RUN)
+    mb = 1e6
+    print(f"flights frame in memory           {frame_bytes / mb:8.0f} MB")
+    print(f"interpreter + libraries alone     {base / mb:8.0f} MB")
+    print(f"peak RSS, prepare                 {prepare / mb:8.0f} MB  "
+          f"({prepare / frame_bytes:.2f}x the frame; {(prepare - base) / frame_bytes:.2f}x "
+          f"above the libraries)")
+    print(f"peak RSS, run naive + lgbm        {run / mb:8.0f} MB  "
+          f"({run / frame_bytes:.2f}x the frame; {(run - base) / frame_bytes:.2f}x above the "
+          f"libraries)  (target <= 3x)")
+    print(f"machine: {machine()}")
+
+
+if __name__ == "__main__":
+    main()

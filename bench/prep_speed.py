@@ -1,0 +1,52 @@
+"""Baseline procedure speed on ~1M rows (the flights rows repeated three times).
+
+Prints three times (best of 3) and two ratios:
+- procedure fit+transform / plain NumPy copy of the same numeric columns (target: <= 2);
+- scikit-learn ColumnTransformer equivalent / procedure (target: >= 5). The equivalent is
+  OrdinalEncoder(unknown and missing → -1) for text columns, SimpleImputer(median,
+  add_indicator) for numeric columns, and the same calendar fields through a FunctionTransformer
+  + SimpleImputer for the date column; tests/test_prep_equivalence.py checks on small frames that
+  both give the same output.
+
+    python bench/prep_speed.py
+"""
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from _common import best_of, machine  # noqa: E402
+
+from harness.prep import BaselinePrep, sklearn_equivalent  # noqa: E402
+from harness.sources import load_task  # noqa: E402
+from harness.suite import load_suite  # noqa: E402
+
+
+def main():
+    task = load_suite("default").task("flights")
+    frame = pd.concat([load_task(task).features] * 3, ignore_index=True)
+    numeric = frame.select_dtypes("number")
+    print(f"frame: {len(frame):,} rows, {frame.shape[1]} columns "
+          f"({numeric.shape[1]} numeric), {frame.memory_usage(deep=True).sum() / 1e6:.0f} MB")
+    copy_s, _ = best_of(lambda: numeric.to_numpy(dtype=np.float64, copy=True))
+    ours_s, ours = best_of(lambda: BaselinePrep(date_columns=["time_hour"]).fit_transform(frame))
+    fitted = BaselinePrep(date_columns=["time_hour"]).fit(frame)
+    fit_s, _ = best_of(lambda: BaselinePrep(date_columns=["time_hour"]).fit(frame))
+    transform_s, _ = best_of(lambda: fitted.transform(frame))
+    sk_s, theirs = best_of(lambda: sklearn_equivalent(frame, ["time_hour"]).fit_transform(frame),
+                           repeats=1)
+    same = np.allclose(np.sort(ours, axis=1), np.sort(np.asarray(theirs, np.float32), axis=1),
+                       equal_nan=True)
+    print(f"numpy copy of the numeric columns  {copy_s * 1000:9.1f} ms")
+    print(f"procedure fit_transform            {ours_s * 1000:9.1f} ms "
+          f"(fit {fit_s * 1000:.0f} ms, transform {transform_s * 1000:.0f} ms)")
+    print(f"scikit-learn ColumnTransformer     {sk_s * 1000:9.1f} ms (same values: {same})")
+    print(f"ratio procedure / numpy copy       {ours_s / copy_s:9.1f}x  (target <= 2)")
+    print(f"ratio ColumnTransformer / proc.    {sk_s / ours_s:9.1f}x  (target >= 5)")
+    print(f"machine: {machine()}")
+
+
+if __name__ == "__main__":
+    main()

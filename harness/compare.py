@@ -167,15 +167,28 @@ def _seed_predictions(folder: Path, frame, task, model, seeds, row_id):
 
 
 def _task_delta(task: Task, metric, y, naive, base_preds, cand_preds, rng, n_boot):
-    """(delta, se_boot, se_seed, base_score, cand_score); base/cand_preds: [model][seed]."""
+    """(delta, se_boot, se_seed, seed_df, base_score, cand_score) for one task.
+
+    ``base_preds``/``cand_preds``: [model][seed] predictions. ``se_seed`` pools the seed variance
+    of both sides (each side's per-seed score, averaged over models, varies by seed), with
+    ``seed_df = 2 (K - 1)`` degrees of freedom; it is 0 for models the seed does not change.
+    """
     base_scores = np.array([[metric(y, p) for p in seeds] for seeds in base_preds])
     cand_scores = np.array([[metric(y, p) for p in seeds] for seeds in cand_preds])
     naive_score = metric(y, np.broadcast_to(naive, (len(y),) + np.shape(naive)))
     scale = float(metric.gain(base_scores.mean(), naive_score))
     if not scale > 0:
-        return None, None, None, base_scores.mean(), cand_scores.mean()
-    per_seed = (metric.gain(cand_scores, base_scores) / scale).mean(axis=0)  # over models
-    delta = float(per_seed.mean())
+        return None, None, None, None, base_scores.mean(), cand_scores.mean()
+    # each side's skill-like gain over naive per seed, averaged over models
+    base_gain = (metric.gain(base_scores, naive_score) / scale).mean(axis=0)
+    cand_gain = (metric.gain(cand_scores, naive_score) / scale).mean(axis=0)
+    delta = float(cand_gain.mean() - base_gain.mean())
+    k = len(base_gain)
+    if k > 1:
+        se_seed = float(np.sqrt((np.var(base_gain, ddof=1) + np.var(cand_gain, ddof=1)) / k))
+        seed_df = 2 * (k - 1)
+    else:
+        se_seed, seed_df = 0.0, None
     n = len(y)
     boot = np.empty(n_boot)
     for b in range(n_boot):
@@ -184,9 +197,23 @@ def _task_delta(task: Task, metric, y, naive, base_preds, cand_preds, rng, n_boo
                  for cs, bs in zip(cand_preds, base_preds) for c, p in zip(cs, bs)]
         boot[b] = np.mean(gains) / scale
     se_boot = float(np.nanstd(boot, ddof=1))
-    k = len(per_seed)
-    se_seed = float(np.std(per_seed, ddof=1) / np.sqrt(k)) if k > 1 else 0.0
-    return delta, se_boot, se_seed, float(base_scores.mean()), float(cand_scores.mean())
+    return (delta, se_boot, se_seed, seed_df, float(base_scores.mean()),
+            float(cand_scores.mean()))
+
+
+def band_and_p(delta: float, se_boot: float, se_seed: float, seed_df):
+    """(half-width of the 95% band, two-sided p) of a delta with two independent noise parts.
+
+    Student's t with the seed part's degrees of freedom when seeds vary (few seeds make a poor
+    variance estimate, and the normal quantile would call noise a difference); normal otherwise.
+    """
+    se = float(np.hypot(se_boot, se_seed))
+    if se == 0:
+        return 0.0, (1.0 if delta == 0 else 0.0)
+    if se_seed > 0 and seed_df:
+        return (float(stats.t.ppf(0.975, seed_df) * se),
+                float(2 * stats.t.sf(abs(delta) / se, seed_df)))
+    return 1.959964 * se, float(2 * stats.norm.sf(abs(delta) / se))
 
 
 def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, models: list,
@@ -300,7 +327,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
                                           note="no model finished on both sides"))
             continue
         boots = n_boot or (N_BOOTSTRAP_LARGE if len(y) > LARGE_HOLDOUT else N_BOOTSTRAP)
-        delta, se_boot, se_seed, b_score, c_score = _task_delta(
+        delta, se_boot, se_seed, seed_df, b_score, c_score = _task_delta(
             task, metric, y, naive, [b for b, _ in pairs], [c for _, c in pairs], rng, boots)
         leak = _leakage_of(cand_dir, task.name)
         if delta is None:
@@ -310,10 +337,8 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
                                           note="the baseline does not beat the naive floor, "
                                                "so there is no scale for a delta"))
             continue
-        se = float(np.hypot(se_boot, se_seed))
-        p = 1.0 if se == 0 and delta == 0 else (0.0 if se == 0 else
-                                                 float(2 * stats.norm.sf(abs(delta) / se)))
-        results.append(TaskComparison(task.name, delta, delta - 1.96 * se, delta + 1.96 * se,
+        half, p = band_and_p(delta, se_boot, se_seed, seed_df)
+        results.append(TaskComparison(task.name, delta, delta - half, delta + half,
                                       p, None, "same", metric=task.metric,
                                       baseline_score=b_score, candidate_score=c_score,
                                       leakage=leak))

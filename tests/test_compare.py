@@ -62,8 +62,8 @@ def test_task_delta_band_matches_scipy_bootstrap():
 
 
 def test_aa_is_marked_and_stays_green(tmp_path):
-    result = compare("builtin", suite="quick", tasks=["chicago", "attrition"],
-                     models=["rf"], seeds=2, out=tmp_path)
+    result = compare("builtin", suite="quick", tasks=["attrition", "credit_data"],
+                     models=["rf"], seeds=2, out=tmp_path, workers=1)
     assert result.aa
     assert not result.regression
     rows = [json.loads(line) for line in open(tmp_path / "candidate" / "jobs.jsonl")]

@@ -598,6 +598,11 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("tabpar: interrupted.", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into a reader that stopped (e.g. head)
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -138,8 +138,13 @@ class Suite:
         for t in self.tasks:
             if t.name == name:
                 return t
+        import difflib
+
+        names = [t.name for t in self.tasks]
+        close = difflib.get_close_matches(name, names, n=1, cutoff=0.6)
+        hint = f" Did you mean '{close[0]}'?" if close else ""
         raise UserError(f"Unknown task '{name}' in suite '{self.name}' ({self.path}); its tasks "
-                        f"are {', '.join(t.name for t in self.tasks)}.")
+                        f"are {', '.join(names)}.{hint}")
 
     def select(self, names) -> list[Task]:
         if not names:

@@ -485,11 +485,8 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
             task_errors[task.name] = str(exc)
     store.open_for_writing()
     try:
-        meta = _check_compatible(store.read_meta(), suite, prepared, out, procedure.name)
-        meta["versions"] = library_versions()
-        meta["cores"], meta["workers"], meta["threads_per_model"] = cores, workers, threads
-        meta["executor"] = executor if executor == "local" else f"dask {scheduler}"
-        store.write_meta(meta)
+        old_meta = store.read_meta()
+        meta = _check_compatible(old_meta, suite, prepared, out, procedure.name)
         jobs = plan_jobs(prepared, model_names, list(range(seed_offset, seed_offset + seeds)),
                          threads)
         done = {(r["task"], r["model"], r["seed"]) for r in store.rows()
@@ -497,7 +494,13 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         todo = [j for j in jobs if (j["task"], j["model"], j["seed"]) not in done]
         todo.sort(key=lambda j: -j["cost"])  # longest first balances the workers
         reused = len(jobs) - len(todo)
-        versions = meta["versions"]
+        if todo or meta != old_meta:
+            # (importing the model libraries for their versions is skipped on a no-op rerun)
+            meta["versions"] = library_versions()
+            meta["cores"], meta["workers"], meta["threads_per_model"] = cores, workers, threads
+            meta["executor"] = executor if executor == "local" else f"dask {scheduler}"
+            store.write_meta(meta)
+        versions = meta.get("versions")
         bar = Progress(len(todo), progress)
         interrupted = _execute(todo, workers, store, versions, prepared, bar, job_timeout,
                                executor, scheduler)

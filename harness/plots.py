@@ -4,6 +4,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from .errors import UserError
 from .reference import Reference, model_skills
@@ -118,42 +119,53 @@ def leaderboard_panel(ax, leaderboard, score: float) -> None:
 
 def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> Path:
     """Per task, the skill of each default ensemble; tasks ordered by difficulty (hardest at
-    the top). ``overlay``: a run folder's models drawn hollow, on the reference's scale."""
+    the top). ``overlay``: a run folder of the same suite, its default ensembles drawn hollow
+    on the reference's scale (its naive floor and best default)."""
     table = model_skills(reference)
     table = table[table["model"].isin(DEFAULT_ENSEMBLES)]
     if table.empty:
         raise UserError(f"The reference {reference.folder} has no default-ensemble results to "
                         f"plot.")
-    order = (table.groupby("task")["difficulty"].first().sort_values().index.tolist())
-    fig, ax = _figure(8.5, 0.5 * len(order) + 2.4)
-    low = -0.5
-    for j, model in enumerate(DEFAULT_ENSEMBLES):
-        sub = table[table["model"] == model].set_index("task").reindex(order)
-        offset = (j - 2) * 0.1
-        ax.scatter(np.clip(sub["skill"], low, None), np.arange(len(order)) + offset, s=34,
-                   color=PALETTE[model], edgecolor="black", linewidth=0.4, zorder=3,
-                   label=model)
+    extra = None
     if overlay is not None:
+        if overlay.suite != reference.suite:
+            raise UserError(f"The overlay {overlay.folder} is a run of suite '{overlay.suite}' "
+                            f"but the reference is of suite '{reference.suite}' (other rows, "
+                            f"other holdouts); pass --reference {overlay.suite} or overlay a "
+                            f"run of '{reference.suite}'.")
         extra = model_skills(overlay, against=reference)
-        extra = extra[extra["task"].isin(order)]
-        for j, model in enumerate(sorted(extra["model"].unique())):
-            sub = extra[extra["model"] == model].set_index("task").reindex(order)
-            ax.scatter(np.clip(sub["skill"], low, None), np.arange(len(order)), s=90,
-                       facecolor="none", edgecolor=PALETTE.get(model, "black"), linewidth=1.6,
-                       zorder=4, label=f"{model} (overlay: {Path(overlay.folder).name})")
+        extra = extra[extra["model"].isin(DEFAULT_ENSEMBLES) & extra["task"].isin(table["task"])]
+    order = table.groupby("task")["difficulty"].first().sort_values().index.tolist()
+    fig, ax = _figure(8.5, 0.5 * len(order) + 2.4)
+    low = -0.5  # a model far below naive would squash every other point
+    shown = pd.concat([table["skill"], extra["skill"]]) if extra is not None else table["skill"]
+    left = max(low, min(-0.1, float(np.nanmin(shown)) - 0.05))
+    right = max(1.1, float(np.nanmax(shown)) + 0.05)
+    for j, model in enumerate(DEFAULT_ENSEMBLES):
+        rows = np.arange(len(order)) + (j - 2) * 0.1
+        sub = table[table["model"] == model].set_index("task").reindex(order)
+        ax.scatter(np.clip(sub["skill"], low, None), rows, s=34, color=PALETTE[model],
+                   edgecolor="black", linewidth=0.4, zorder=3, label=model)
+        if extra is not None:
+            mine = extra[extra["model"] == model].set_index("task").reindex(order)
+            ax.scatter(np.clip(mine["skill"], low, None), rows, s=95, facecolor="none",
+                       edgecolor=PALETTE[model], linewidth=1.6, zorder=4)
+    if extra is not None:
+        ax.scatter([], [], s=95, facecolor="none", edgecolor="black", linewidth=1.6,
+                   label=f"hollow: {Path(overlay.folder).name}")
     ax.axvline(0, color="#999999", linestyle=":", label="naive floor (skill 0)")
     ax.axvline(1, color="#0072B2", linestyle="--", label="best default (skill 1)")
     labels = [f"{t}  (difficulty {table[table['task'] == t]['difficulty'].iloc[0]:.2f})"
               for t in order]
     ax.set_yticks(range(len(order)))
     ax.set_yticklabels(labels, fontsize=9)
-    ax.set_xlim(low - 0.05, None)
-    ax.set_xlabel(f"skill = gain over naive / best default's gain  (better →; values under "
-                  f"{low} drawn at {low})")
-    ax.set_title(f"Default ensembles across suite '{reference.suite}' "
+    ax.set_xlim(left, right)
+    ax.set_xlabel("skill = gain over naive / best default's gain  (better →"
+                  + (f"; under {low} drawn at {low})" if left <= low else ")"))
+    ax.set_title(f"Default ensembles across suite '{reference.suite}'\n"
                  f"(tasks ordered by difficulty, hardest at the top)", fontsize=11)
     ax.grid(axis="x", alpha=0.3)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=4, fontsize=8,
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=4, fontsize=8,
               frameon=False)
     return _save(fig, path)
 

@@ -242,3 +242,13 @@ def test_suite_plot_svg_and_png(tmp_path):
     for name in ("suite.png", "suite.svg"):
         path = suite_plot(ref, tmp_path / name, overlay=ref)
         assert path.stat().st_size > 5_000
+
+
+def test_suite_plot_refuses_an_overlay_of_another_suite(tmp_path):
+    from harness.errors import UserError
+    from harness.plots import suite_plot
+    from harness.reference import Reference
+
+    with pytest.raises(UserError, match="other holdouts"):
+        suite_plot(Reference("default"), tmp_path / "s.png", overlay=Reference("quick"))
+    assert not (tmp_path / "s.png").exists()

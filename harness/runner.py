@@ -403,7 +403,8 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
                              "procedure": p.procedure, "threads": threads,
                              "code": preparation_code_digest(),
                              "folder": str(p.folder),
-                             "cost": MODELS[model].cost * p.n_train * len(p.feature_names)})
+                             "cost": MODELS[model].cost(t.type) * p.n_train
+                             * len(p.feature_names) / 1e6})
     return jobs
 
 
@@ -494,6 +495,11 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         todo = [j for j in jobs if (j["task"], j["model"], j["seed"]) not in done]
         todo.sort(key=lambda j: -j["cost"])  # longest first balances the workers
         reused = len(jobs) - len(todo)
+        if executor == "local" and 0 < len(todo) < workers:
+            # fewer jobs than workers: give each job the cores the idle workers would have had
+            threads = max(1, cores // len(todo))
+            for job in todo:
+                job["threads"] = threads
         if todo or meta != old_meta:
             # (importing the model libraries for their versions is skipped on a no-op rerun)
             meta["versions"] = library_versions()

@@ -21,7 +21,14 @@ class ModelSpec:
     description: str
     build: Callable  # (task_type, seed, threads) -> unfitted estimator
     seeded: bool  # whether the seed can change its fit (for reproducibility checks)
-    cost: float  # rough relative fit cost, for scheduling the longest jobs first
+    # fit seconds per million training cells (rows × features) at one thread, regression and
+    # classification: medians over the default reference's jobs (2026, 2 cores); used to start
+    # the longest jobs first and to estimate a job's time against a budget
+    costs: tuple
+
+    def cost(self, task_type: str) -> float:
+        """Rough fit seconds per million training cells for ``task_type`` (one thread)."""
+        return self.costs[0] if task_type == "regression" else self.costs[1]
 
 
 def _naive(task_type, seed, threads):
@@ -83,14 +90,14 @@ def _lgbm(task_type, seed, threads):
 MODELS: dict[str, ModelSpec] = {
     m.name: m
     for m in [
-        ModelSpec("naive", "mean / class prior (the floor)", _naive, False, 0.01),
+        ModelSpec("naive", "mean / class prior (the floor)", _naive, False, (0.005, 0.012)),
         ModelSpec("linear", "ridge / logistic regression on standardised features", _linear,
-                  False, 0.1),
-        ModelSpec("rf", "random forest (scikit-learn)", _rf, True, 3.0),
-        ModelSpec("et", "extra trees (scikit-learn)", _et, True, 2.0),
-        ModelSpec("hgb", "histogram gradient boosting (scikit-learn)", _hgb, True, 1.0),
-        ModelSpec("xgb", "XGBoost", _xgb, True, 1.0),
-        ModelSpec("lgbm", "LightGBM", _lgbm, True, 0.7),
+                  False, (0.06, 0.16)),
+        ModelSpec("rf", "random forest (scikit-learn)", _rf, True, (32.0, 9.7)),
+        ModelSpec("et", "extra trees (scikit-learn)", _et, True, (15.7, 7.4)),
+        ModelSpec("hgb", "histogram gradient boosting (scikit-learn)", _hgb, True, (2.2, 4.3)),
+        ModelSpec("xgb", "XGBoost", _xgb, True, (1.5, 3.6)),
+        ModelSpec("lgbm", "LightGBM", _lgbm, True, (0.8, 3.4)),
     ]
 }
 

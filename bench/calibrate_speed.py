@@ -1,0 +1,127 @@
+"""Wall time of one `tabpar calibrate` run on a 100,000-row, 30-column table.
+
+The table is a SYNTHETIC stand-in (made here from a seeded random generator, not real data):
+one date column (the time holdout), 19 numeric columns (some with gaps), 8 category columns of
+3 to 500 levels (some with gaps), one row-id-like integer, and the target — 30 columns in all.
+The target is a noisy non-linear function of a few columns, so there is something to learn.
+
+    python bench/calibrate_speed.py                    # regression, the default zoo, 1 seed
+    python bench/calibrate_speed.py --type binary
+
+Runs the console script once, as a user would (imports and all), and prints the wall time, the
+machine (cores, memory) and the library versions, plus the per-phase times from report.json.
+Run it on an otherwise idle machine; the figure goes into bench/RESULTS.md under "calibrate".
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+ROWS = 100_000
+
+
+def synthetic_table(rows: int = ROWS, task_type: str = "regression", seed: int = 0):
+    """A synthetic table of ``rows`` rows and 30 columns (see the module docstring)."""
+    rng = np.random.default_rng(seed)
+    data = {"opened": pd.Timestamp("2019-01-01")
+            + pd.to_timedelta(np.sort(rng.integers(0, 5 * 365, rows)), unit="D")}
+    numeric = rng.normal(size=(rows, 19))
+    for j in range(19):
+        column = numeric[:, j] * (1 + j) + 10 * j
+        if j % 5 == 4:  # every fifth numeric column has 8% gaps
+            column[rng.random(rows) < 0.08] = np.nan
+        data[f"num_{j:02d}"] = column
+    levels = (3, 5, 8, 12, 20, 50, 200, 500)
+    for j, k in enumerate(levels):
+        codes = rng.zipf(1.6, rows) % k
+        values = np.array([f"level_{j}_{c}" for c in range(k)], dtype=object)[codes]
+        if j % 3 == 2:
+            values[rng.random(rows) < 0.05] = None
+        data[f"cat_{j}"] = values
+    data["ticket_no"] = rng.permutation(rows) + 10_000  # an id: no signal
+    frame = pd.DataFrame(data)
+    effect = {f"level_1_{c}": v for c, v in enumerate(rng.normal(size=5))}
+    signal = (np.sin(numeric[:, 0]) * 2 + numeric[:, 1] * numeric[:, 2]
+              + frame["cat_1"].map(effect).to_numpy() + 0.002 * np.arange(rows) / 100)
+    noise = rng.normal(scale=1.0, size=rows)
+    if task_type == "regression":
+        frame["target"] = 50 + 5 * (signal + noise)
+    else:
+        frame["target"] = np.where(signal + noise > 0.5, "yes", "no")
+    assert frame.shape[1] == 30, frame.shape
+    return frame
+
+
+def machine() -> dict:
+    try:
+        with open("/proc/meminfo") as handle:
+            kb = int(next(line for line in handle if line.startswith("MemTotal")).split()[1])
+        memory = f"{kb / 1024 / 1024:.1f} GiB"
+    except (OSError, StopIteration):
+        memory = "unknown"
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:
+        cores = os.cpu_count()
+    return {"cores": cores, "memory": memory, "cpu": platform.processor() or platform.machine(),
+            "os": platform.platform()}
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--type", default="regression", choices=["regression", "binary"])
+    parser.add_argument("--rows", type=int, default=ROWS)
+    parser.add_argument("--keep", action="store_true", help="keep the output folder")
+    args = parser.parse_args()
+
+    from harness.runner import library_versions
+
+    work = Path(tempfile.mkdtemp(prefix="tabpar-bench-calibrate-"))
+    data = work / "synthetic.parquet"
+    synthetic_table(args.rows, args.type).to_parquet(data, index=False)
+    out = work / "out"
+    score = "60" if args.type == "regression" else "0.7"
+    script = Path(sys.executable).parent / "tabpar"  # the console script of this environment
+    launcher = [str(script)] if script.exists() else [sys.executable, "-m", "harness.cli"]
+    command = launcher + ["calibrate", str(data), "--target", "target",
+               "--date", "opened", "--score", score, "--seeds", "1", "--out", str(out), "--json"]
+    env = dict(os.environ, TABPAR_CACHE=str(work / "cache"))  # a cold cache, as a first run
+    t0 = time.perf_counter()
+    done = subprocess.run(command, env=env, capture_output=True, text=True)
+    seconds = time.perf_counter() - t0
+    if done.returncode != 0:
+        print(done.stderr, file=sys.stderr)
+        return done.returncode
+    report = json.loads(done.stdout)
+    print(f"tabpar calibrate, synthetic {args.type} table of {args.rows:,} rows x 30 columns, "
+          f"time holdout, the default zoo, 1 seed: {seconds:.1f} s wall")
+    print(f"  split: {report['split']}")
+    print("  diagnostics: " + ", ".join(f"{d['name']} {d['seconds']:.1f} s"
+                                        for d in report["diagnostics"]))
+    print("  models (fit s): " + ", ".join(f"{m} {s['fit_seconds']:.1f}"
+                                           for m, s in report["baseline"].items()))
+    if report["skipped"]:
+        print(f"  skipped: {report['skipped']}")
+    print(f"  verdict {report['score_verdict']}, dataset {report['dataset']}")
+    print(f"  machine: {json.dumps(machine())}")
+    print(f"  versions: {json.dumps(library_versions())}")
+    if args.keep:
+        print(f"  output kept in {out}")
+    else:
+        shutil.rmtree(work, ignore_errors=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -102,7 +102,7 @@ def calibration_task(data, target: str, type: str | None = None, metric: str | N
     if len(distinct) < 2:
         raise UserError(f"The target column '{target}' of {where} is constant "
                         f"({_plain(distinct[0])!r} on every row that has a value); there is "
-                        f"nothing to predict.")
+                        f"nothing to predict; choose another target column.")
     numeric = (pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values))
 
     if type is None:
@@ -678,7 +678,8 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         raise UserError("Give exactly one of --score and --predictions (or --export-split DIR "
                         "to write the split first).")
     if score is not None and not (isinstance(score, (int, float)) and math.isfinite(score)):
-        raise UserError(f"--score {score!r} is not a finite number.")
+        raise UserError(f"--score {score!r} is not a finite number; give your holdout score in "
+                        f"the metric.")
     zoo_order(models)  # an unknown model fails before any work
     if isinstance(seeds, bool) or not isinstance(seeds, int) or seeds < 1:
         raise UserError(f"--seeds must be a positive whole number, not {seeds!r}.")

@@ -84,6 +84,9 @@ def cmd_run(args) -> int:
     elif not args.quiet:
         print(render_run(result))
     if result.interrupted:
+        if args.quiet or args.json:  # the one line a quiet run still owes its user
+            print(f"tabpar: interrupted; every finished job is saved in {result.out}; run the "
+                  f"same command again to resume.", file=sys.stderr)
         return 130
     return 1 if result.failed else 0
 
@@ -169,7 +172,8 @@ def cmd_compare(args) -> int:
     result = compare(args.candidate, baseline=args.baseline, suite=args.suite,
                      tasks=args.tasks, models=args.models, seeds=args.seeds,
                      tolerance=args.tolerance, out=args.out, workers=args.workers,
-                     progress=progress, executor=args.executor, scheduler=args.scheduler)
+                     progress=progress, executor=args.executor, scheduler=args.scheduler,
+                     force=args.force)
     forest_plot(result, Path(result.out) / "forest.png")
     if args.plot:
         forest_plot(result, args.plot)
@@ -443,6 +447,8 @@ def build_parser() -> argparse.ArgumentParser:
     comp.add_argument("--workers", type=int, default=None, help="worker processes")
     _executor_options(comp)
     comp.add_argument("--plot", default=None, help="also write the forest plot to FILE")
+    comp.add_argument("--force", action="store_true",
+                      help="compare even when a task's data changed since the baseline ran")
     comp.add_argument("--quiet", action="store_true", help="print nothing but errors")
     comp.add_argument("--json", action="store_true", help="print one JSON object")
     comp.set_defaults(func=cmd_compare)

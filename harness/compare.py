@@ -24,7 +24,7 @@ from scipy import stats
 from .errors import UserError
 from .metrics import get_metric
 from .procedures import builtin, resolve_procedure
-from .reference import published_root
+from .reference import check_format, published_root
 from .runner import (library_versions, load_arrays, preparation_code_digest, prepare_task,
                      run_suite)
 from .store import (RUN_FILE, ResultsStore, align_to, atomic_write_text, load_results,
@@ -254,7 +254,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
             models=None, seeds: int = 3, tolerance: float = 0.0, out=None,
             workers: int | None = None, progress: bool = False, n_boot: int | None = None,
             seed: int = 0, executor: str = "local", scheduler: str | None = None,
-            aa_seed_offset: int = AA_SEED_OFFSET) -> Comparison:
+            aa_seed_offset: int = AA_SEED_OFFSET, force: bool = False) -> Comparison:
     """Compare procedure ``candidate`` with ``baseline`` (a procedure SPEC or a results
     folder) on ``suite``. Deltas are unit-free, positive = the candidate is better."""
     if tolerance < 0:
@@ -271,6 +271,14 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
     base_dir = Path(baseline) if (Path(baseline) / RUN_FILE).exists() else None
     if base_dir is not None:
         base_meta = json.loads((base_dir / RUN_FILE).read_text())
+        check_format(base_meta, base_dir)
+        for task in selected:
+            then = base_meta.get("tasks", {}).get(task.name, {}).get("fingerprint")
+            now = prepare_task(task).fingerprint
+            if then is not None and then != now and not force:
+                raise UserError(f"The data of task '{task.name}' changed since the baseline "
+                                f"{base_dir} was run (fingerprint {then} then, {now} now); "
+                                f"rerun the baseline, or pass --force to compare anyway.")
         if base_meta.get("suite") != suite_obj.name:
             raise UserError(f"The baseline folder {base_dir} holds suite "
                             f"'{base_meta.get('suite')}', not '{suite_obj.name}'; pass --suite "

@@ -2,8 +2,9 @@
 
 Two kinds: a file of entries a user brings (``import_leaderboard``) and the run evaluations of an
 OpenML task (``pull_openml``). A stored leaderboard is two files in a store folder, each written
-atomically: ``NAME.parquet`` (the entries, one row each, columns kept as they came) and
-``NAME.json`` (what placement needs: task, score column, direction, metric when known; and the
+atomically: ``NAME.HASH.parquet`` (the entries, one row each, columns kept as they came, named
+by their content so a replacement never overwrites the entries in use) and ``NAME.json``
+(what placement needs: task, score column, direction, metric when known; and the
 provenance: source, counts, dates, a checksum of the entries file).
 
 The store folder is ``--store DIR``, else ``$TABPAR_LEADERBOARDS``, else
@@ -221,16 +222,27 @@ def _save(entries: pd.DataFrame, meta: dict, name: str, store, replace: bool) ->
         raise UserError(f"The entries of leaderboard '{name}' cannot be stored as Parquet "
                         f"({exc.__class__.__name__}: {str(exc).splitlines()[0]}); give every "
                         f"column values of one type.") from None
+    digest = hashlib.sha256(payload).hexdigest()
+    # the entries file is named by its content, so writing it never touches the entries the
+    # current meta file points to; switching the meta file (one atomic rename) is the commit
+    data_path = data_path.with_name(f"{name}.{digest[:12]}.parquet")
+    previous = None
+    if meta_path.exists():
+        try:
+            previous = json.loads(meta_path.read_text(encoding="utf-8")).get("entries_file")
+        except (OSError, ValueError):
+            previous = None
     meta = {"format": FORMAT, "name": name, **meta, "entries_file": data_path.name,
-            "entries_sha256": hashlib.sha256(payload).hexdigest(), "created_at": _now()}
+            "entries_sha256": digest, "created_at": _now()}
     try:
         folder.mkdir(parents=True, exist_ok=True)
-        # entries first: the meta file is what makes a leaderboard visible
         atomic_write_bytes(data_path, payload)
         atomic_write_text(meta_path, json.dumps(meta, indent=2, default=str))
     except OSError as exc:
         raise UserError(f"Cannot write to the leaderboard store {folder} ({exc.strerror}); "
                         f"choose another with --store or {STORE_ENV}.") from None
+    if previous and previous != data_path.name:
+        (folder / Path(previous).name).unlink(missing_ok=True)
     return Leaderboard(name=name, path=meta_path, meta=meta,
                        entries=entries.reset_index(drop=True))
 

@@ -84,7 +84,8 @@ def place_on_leaderboard(score: float, leaderboard: Leaderboard | str,
     board = (leaderboard if isinstance(leaderboard, Leaderboard)
              else load_leaderboard(leaderboard, store))
     if score is None or not np.isfinite(score):
-        raise UserError(f"The score {score!r} is not a finite number.")
+        raise UserError(f"The score {score!r} is not a finite number; give your holdout score "
+                        f"in the task's metric.")
     score = float(score)
     entries = board.scores
     # a Leaderboard has the direction-normalised gain these helpers need from a metric
@@ -340,7 +341,8 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         user = read_predictions_file(Path(predictions), row_id, definition.type, task)
         score = metric(y, user)
     if score is None or not np.isfinite(score):
-        raise UserError(f"The score {score!r} is not a finite number.")
+        raise UserError(f"The score {score!r} is not a finite number; give your holdout score "
+                        f"in the task's metric.")
     score = float(score)
 
     named = {"best": tref.best_model, "par": tref.par_model, "naive": "naive"}

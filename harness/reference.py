@@ -18,7 +18,8 @@ import pandas as pd
 from .errors import UserError
 from .metrics import get_metric
 from .runner import available_cores, library_versions, run_suite
-from .store import RUN_FILE, atomic_write_text, load_results, read_predictions
+from .store import (RUN_FILE, STORE_FORMAT, atomic_write_text, load_results,
+                    read_predictions)
 from .zoo import DEFAULT_ENSEMBLES
 
 
@@ -44,6 +45,14 @@ def resolve_reference(reference: str | Path) -> Path:
     raise UserError(f"Unknown reference '{text}': it is neither a published reference "
                     f"({', '.join(names) or 'none published'}) nor a results folder with "
                     f"{RUN_FILE}.")
+
+
+def check_format(meta: dict, folder) -> None:
+    """UserError unless a results folder's run.json is in the format this version reads."""
+    if meta.get("format") != STORE_FORMAT:
+        raise UserError(f"{folder} was written by an incompatible tabpar version (results format "
+                        f"{meta.get('format')}, this one reads {STORE_FORMAT}); rebuild it with "
+                        f"this version.")
 
 
 def headroom_taken(metric_name: str, naive: float, best: float) -> float:
@@ -87,6 +96,7 @@ class Reference:
     def __init__(self, folder: str | Path):
         self.folder = resolve_reference(folder)
         self.meta = json.loads((self.folder / RUN_FILE).read_text(encoding="utf-8"))
+        check_format(self.meta, self.folder)
         rows = load_results(self.folder)
         self.rows = rows[rows["status"] == "ok"] if not rows.empty else rows
         self._cache: dict = {}

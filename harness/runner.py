@@ -166,7 +166,10 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     target = encode_target(loaded)
     split = split_rows(loaded, target)
     features = loaded.features
-    _check_finite(features, task)
+    if features.shape[1] == 0:
+        raise UserError(f"Task '{task.name}' has no feature columns left after its drops and "
+                        f"its target; keep at least one column to predict from.")
+    _check_finite(features, task, loaded.row_ids)
     train, holdout = features.iloc[split.train], features.iloc[split.holdout]
     transformer = procedure.build(task)
     try:
@@ -204,9 +207,15 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
             "leakage": leakage}
     tmp = folder.with_name(folder.name + f".tmp{os.getpid()}")
     tmp.mkdir(parents=True, exist_ok=True)
-    for name, array in arrays.items():
-        np.save(tmp / f"{name}.npy", array)
-    atomic_write_text(tmp / "meta.json", json.dumps(meta))
+    try:
+        for name, array in arrays.items():
+            np.save(tmp / f"{name}.npy", array)
+        atomic_write_text(tmp / "meta.json", json.dumps(meta))
+    except BaseException:
+        import shutil
+
+        shutil.rmtree(tmp, ignore_errors=True)  # never leave a half-written entry behind
+        raise
     try:
         os.replace(tmp, folder)
     except OSError:  # another process cached it first; theirs is identical
@@ -220,7 +229,8 @@ def _plain(value):
     return value.item() if isinstance(value, np.generic) else value
 
 
-def _check_finite(features, task: Task) -> None:
+def _check_finite(features, task: Task, row_ids) -> None:
+    """UserError for an infinite value (``row_ids``: each row's position in the source)."""
     numeric = features.select_dtypes("number")
     if numeric.empty:
         return
@@ -229,8 +239,8 @@ def _check_finite(features, task: Task) -> None:
     if bad.any():
         row, col = map(int, np.argwhere(bad)[0])
         raise UserError(f"Column '{numeric.columns[col]}' of task '{task.name}' has an infinite "
-                        f"value at row {row}; replace it with a finite number or leave it "
-                        f"blank.")
+                        f"value at row {int(row_ids[row])}; replace it with a finite number or "
+                        f"leave it blank.")
 
 
 def cache_info(cache_dir: Path | None = None) -> dict:

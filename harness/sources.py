@@ -196,30 +196,44 @@ def to_datetimes(values: pd.Series):
     return parsed, "not a date", row
 
 
-def parse_dates(values: pd.Series, column: str, where: str) -> pd.Series:
-    """Parse a column as dates; UserError naming the first bad value and its row."""
+def _unhashable(column: pd.Series) -> bool:
+    try:
+        pd.util.hash_pandas_object(column, index=False)
+        return False
+    except TypeError:
+        return True
+
+
+def parse_dates(values: pd.Series, column: str, where: str, row_ids=None) -> pd.Series:
+    """Parse a column as dates; UserError naming the first bad value and its row (the row's
+    position in the source, ``row_ids[i]``, when given)."""
     parsed, problem, row = to_datetimes(values)
+    shown = (lambda i: int(row_ids[i])) if row_ids is not None else (lambda i: i)
     if problem == "mixed time zones":
         raise UserError(f"Date column '{column}' in {where} mixes time zones (or dates with "
                         f"and without one); convert every value to one zone (e.g. UTC) first.")
     if problem is not None:
         raise UserError(f"Date column '{column}' in {where} has a value that is not a date, "
-                        f"{values.iloc[row]!r} at row {row}; fix or blank it (ISO 8601, e.g. "
+                        f"{values.iloc[row]!r} at row {shown(row)}; fix or blank it (ISO 8601, e.g. "
                         f"2024-03-31, is always understood).")
     years = parsed.dt.year
     low, high = PLAUSIBLE_YEARS
     outside = years.notna() & ((years < low) | (years > high))
     if outside.any():
         row = int(np.flatnonzero(outside.to_numpy())[0])
-        raise UserError(f"Date column '{column}' in {where} has {parsed.iloc[row]} at row {row}, "
+        raise UserError(f"Date column '{column}' in {where} has {parsed.iloc[row]} at row "
+                        f"{shown(row)}, "
                         f"outside the plausible years {low}-{high}; check its units.")
     return parsed
 
 
 def _require_column(frame: pd.DataFrame, column: str, role: str, task: Task) -> None:
     if column not in frame.columns:
+        names = list(map(str, frame.columns))
+        shown = ", ".join(names[:12]) + (" ..." if len(names) > 12 else "")
         raise UserError(f"The {role} column '{column}' of task '{task.name}' is not in "
-                        f"{task.source}.{_close(column, frame.columns)}")
+                        f"{task.source}; fix the name in the suite file (its columns are "
+                        f"{shown}).{_close(column, frame.columns)}")
 
 
 def load_task(task: Task) -> LoadedTask:
@@ -257,7 +271,13 @@ def load_task(task: Task) -> LoadedTask:
     if task.derive_target is not None:
         frame[task.target] = frame[task.target].astype(int)
     # the source's own rows, as read, before any parsing: stable across code changes
-    digest = fingerprint(raw.iloc[keep])
+    try:
+        digest = fingerprint(raw.iloc[keep])
+    except TypeError:  # a cell holding a list, an array or a dict cannot be hashed
+        bad = next(c for c in raw.columns if _unhashable(raw[c]))
+        raise UserError(f"Column '{bad}' of {task.source} holds lists or other nested values; "
+                        f"tabpar needs one plain value per cell, so flatten or drop it.") \
+            from None
 
     where = f"task '{task.name}'"
     if task.assemble_date is not None:
@@ -269,7 +289,7 @@ def load_task(task: Task) -> LoadedTask:
         frame[a.name] = pd.to_datetime(parts, errors="coerce")
     for col in task.dates:
         _require_column(frame, col, "date", task)
-        frame[col] = parse_dates(frame[col], col, where)
+        frame[col] = parse_dates(frame[col], col, where, row_ids=keep)
     for col in task.drop:
         _require_column(frame, col, "drop", task)
     if task.target in task.drop:

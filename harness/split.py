@@ -48,19 +48,22 @@ def encode_target(loaded: LoadedTask) -> Target:
             if bad.any():
                 row = int(np.flatnonzero(bad.to_numpy())[0])
                 raise UserError(f"The regression {where} has a non-numeric value "
-                                f"{series.iloc[row]!r} at row {row}; use a numeric target or "
+                                f"{series.iloc[row]!r} at row {loaded.row_ids[row]}; use a numeric "
+                                f"target or "
                                 f"type = 'binary'/'multiclass'.")
             series = converted
         values = series.to_numpy(dtype=float)
         if not np.isfinite(values).all():
             row = int(np.flatnonzero(~np.isfinite(values))[0])
-            raise UserError(f"The {where} has an infinite value at row {row}; remove or fix it.")
+            raise UserError(f"The {where} has an infinite value at row {loaded.row_ids[row]}; "
+                            f"remove or fix it.")
         if np.ptp(values) == 0:
             raise UserError(f"The {where} is constant ({values[0]:g}); there is nothing to "
-                            f"predict.")
+                            f"predict; choose another target column.")
         if task.log_target and (values < 0).any():
             row = int(np.flatnonzero(values < 0)[0])
-            raise UserError(f"The {where} has a negative value {values[row]:g} at row {row}, "
+            raise UserError(f"The {where} has a negative value {values[row]:g} at row "
+                            f"{loaded.row_ids[row]}, "
                             f"but RMSLE needs values >= 0; use metric rmse or fix the data.")
         return Target(values=values, classes=[])
     labels = series.to_numpy()
@@ -78,14 +81,14 @@ def encode_target(loaded: LoadedTask) -> Target:
                             f"'multiclass' or derive a two-class target.")
         if len(present) < 2:
             raise UserError(f"The {where} has a single class ({present[0]!r}); there is nothing "
-                            f"to tell apart.")
+                            f"to tell apart; choose a target with two classes.")
         y = (series.astype(str) == str(matches[0])).to_numpy().astype(int)
         others = [v for v in present if str(v) != str(matches[0])]
         return Target(values=y, classes=[others[0], matches[0]])
     classes = sorted(present, key=str)
     if len(classes) < 2:
         raise UserError(f"The {where} has a single class ({classes[0]!r}); there is nothing to "
-                        f"tell apart.")
+                        f"tell apart; choose a target with two or more classes.")
     index = {str(c): i for i, c in enumerate(classes)}
     return Target(values=np.array([index[str(v)] for v in labels], dtype=int), classes=classes)
 

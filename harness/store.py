@@ -30,6 +30,7 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; files get the usual mode
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
             handle.flush()
@@ -38,6 +39,12 @@ def atomic_write_bytes(path: Path, data: bytes) -> None:
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def atomic_write_text(path: Path, text: str) -> None:

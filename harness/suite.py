@@ -186,6 +186,8 @@ def _read_toml(path: Path) -> dict:
         text = path.read_text(encoding="utf-8")
     except OSError as exc:
         raise UserError(f"Cannot read suite file {path}: {exc.strerror}.") from None
+    except UnicodeDecodeError:
+        raise UserError(f"Suite file {path} is not UTF-8 text; save it as UTF-8.") from None
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -204,7 +206,11 @@ def load_suite(suite: str | Path, _seen: tuple = ()) -> Suite:
     if not isinstance(head, dict):
         raise UserError(f"'suite' in {path} must be a table ([suite]).")
     _check_keys(head, _SUITE_KEYS, "[suite]", path)
-    name = str(head.get("name", path.stem))
+    name = str(head.get("name") or re.sub(r"[^A-Za-z0-9_.-]", "_", path.stem).lstrip("._-")
+               or "suite")
+    if not _NAME.match(name):  # the name becomes part of folder names (runs/NAME-TIME)
+        raise UserError(f"Suite name '{name}' in {path} may only use letters, digits, '_', '-' "
+                        f"and '.', starting with a letter or digit.")
     tasks: list[Task] = []
     if "extends" in head:
         parent_path = (path.parent / str(head["extends"]))
@@ -219,7 +225,7 @@ def load_suite(suite: str | Path, _seen: tuple = ()) -> Suite:
         tasks.append(_parse_task(entry, i, path))
     if "max_rows" in head or "sample_seed" in head:
         cap = _positive_int(head.get("max_rows"), "max_rows", "[suite]", path)
-        seed = int(head.get("sample_seed", 0))
+        seed = _whole(head.get("sample_seed", 0), "sample_seed", "[suite]", path)
         tasks = [_replace(t, max_rows=cap if t.max_rows is None else min(cap, t.max_rows),
                           sample_seed=seed) for t in tasks]
     seen = set()
@@ -246,6 +252,13 @@ def _positive_int(value, key, where, path):
     if not isinstance(value, int) or isinstance(value, bool) or value < 1:
         raise UserError(f"'{key}' in {where} of {path} must be a positive whole number, "
                         f"not {value!r}.")
+    return value
+
+
+def _whole(value, key, where, path) -> int:
+    if not isinstance(value, int) or isinstance(value, bool):
+        raise UserError(f"'{key}' in {where} of {path} must be a whole number, not {value!r}; "
+                        f"write it without quotes, e.g. {key} = 0.")
     return value
 
 
@@ -304,12 +317,20 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
                         f"not {fraction!r}.")
     if "cutoff" in hold and policy != "time":
         raise UserError(f"A holdout cutoff in {label} of {path} needs policy = 'time'.")
+    if "cutoff" in hold:
+        import pandas as pd
+
+        try:
+            pd.Timestamp(str(hold["cutoff"]))
+        except (ValueError, TypeError):
+            raise UserError(f"The holdout cutoff {hold['cutoff']!r} of {label} in {path} is not a "
+                            f"date; write it as ISO 8601, e.g. cutoff = \"2016-01-01\".") from None
     holdout = Holdout(policy=policy, date=hold.get("date"),
                       fraction=None if fraction is None else float(fraction),
                       rows=_positive_int(hold.get("rows"), "rows", f"the holdout of {label}",
                                          path),
                       cutoff=None if "cutoff" not in hold else str(hold["cutoff"]),
-                      seed=int(hold.get("seed", 0)))
+                      seed=_whole(hold.get("seed", 0), "seed", f"the holdout of {label}", path))
 
     derived = None
     if "derive_target" in entry:
@@ -318,6 +339,9 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
             raise UserError(f"'derive_target' of {label} in {path} needs 'column' and "
                             f"'at_least'.")
         _check_keys(d, {"column", "at_least", "label"}, f"derive_target of {label}", path)
+        if not isinstance(d["at_least"], (int, float)) or isinstance(d["at_least"], bool):
+            raise UserError(f"'at_least' in derive_target of {label} in {path} must be a number, "
+                            f"not {d['at_least']!r}; write it without quotes.")
         derived = DerivedTarget(name=str(entry["target"]), column=str(d["column"]),
                                 at_least=float(d["at_least"]), label=str(d.get("label", "")))
         if task_type != "binary":
@@ -350,7 +374,7 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
         ordinal=tuple((k, tuple(v)) for k, v in ordinal.items()),
         derive_target=derived, assemble_date=assembled,
         max_rows=_positive_int(entry.get("max_rows"), "max_rows", where, path),
-        sample_seed=int(entry.get("sample_seed", 0)),
+        sample_seed=_whole(entry.get("sample_seed", 0), "sample_seed", where, path),
         description=str(entry.get("description", "")), base_dir=str(path.parent))
 
 

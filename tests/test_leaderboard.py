@@ -114,9 +114,9 @@ def test_import_keeps_other_columns_and_writes_provenance(tmp_path, store):
     path = write_csv(tmp_path / "scores.csv", [0.14, 0.16, 0.15], column="rmsle")
     board = import_leaderboard(path, task="ames", score_column="rmsle", store=store)
     assert board.name == "scores" and board.lower_is_better and board.metric == "rmsle"
-    stored = pd.read_parquet(store / "scores.parquet")
-    pd.testing.assert_frame_equal(stored, pd.read_csv(path))  # every column as it came
     meta = json.loads((store / "scores.json").read_text())
+    stored = pd.read_parquet(store / meta["entries_file"])
+    pd.testing.assert_frame_equal(stored, pd.read_csv(path))  # every column as it came
     assert meta["task"] == "ames" and meta["n_entries"] == 3
     assert meta["direction_from"] == "the metric of suite task 'ames' (rmsle)"
     assert meta["source"]["file"] == str(path.resolve())
@@ -176,7 +176,8 @@ def test_existing_name_needs_replace(tmp_path, store):
 
 def test_tampered_entries_are_refused(tmp_path, store):
     board_of(tmp_path, store, ENTRIES, lower=True, name="t1")
-    pd.DataFrame({"score": [9.0, 9.5]}).to_parquet(store / "t1.parquet")
+    entries_file = json.loads((store / "t1.json").read_text())["entries_file"]
+    pd.DataFrame({"score": [9.0, 9.5]}).to_parquet(store / entries_file)
     with pytest.raises(UserError, match="do not match its meta file"):
         load_leaderboard("t1", store)
 

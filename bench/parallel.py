@@ -1,7 +1,10 @@
 """Parallel speed-up: the quick suite with two worker processes against one (target >= 1.7x on
-2 cores), with the thread count per model set from the worker count (shown).
+2 cores), with the thread count per model shown.
 
-Both runs start from a warm cache of prepared arrays, into new result folders.
+Three runs from a warm cache of prepared arrays, into new result folders: one worker with one
+thread per model (the process-level scaling the target is about), one worker with the default
+thread count (cores per model: the models' own threads already use both cores), two workers
+with one thread each (the default).
 
     python bench/parallel.py [--seeds 3]
 """
@@ -27,15 +30,22 @@ def main():
         prepare_task(task)  # warm the cache so both runs do the same work
     cores = available_cores()
     times = {}
-    for workers in (1, 2):
-        out = Path(tempfile.mkdtemp(prefix=f"tabpar-bench-par{workers}-"))
+    for label, workers, threads in (("1 worker, 1 thread", 1, 1),
+                                    ("1 worker, default threads", 1, None),
+                                    ("2 workers, default threads", 2, None)):
+        out = Path(tempfile.mkdtemp(prefix="tabpar-bench-par-"))
         start = time.perf_counter()
-        result = run_suite("quick", seeds=args.seeds, out=out, workers=workers)
-        times[workers] = time.perf_counter() - start
+        result = run_suite("quick", seeds=args.seeds, out=out, workers=workers,
+                           threads_per_model=threads)
+        times[label] = time.perf_counter() - start
         meta = json.loads((out / "run.json").read_text())
-        print(f"workers {workers}: {times[workers]:7.1f} s, {result.ok}/{result.jobs} ok, "
+        print(f"{label:28s} {times[label]:7.1f} s, {result.ok}/{result.jobs} ok, "
               f"{meta['threads_per_model']} thread(s) per model on {cores} cores")
-    print(f"speed-up 2 workers vs 1: {times[1] / times[2]:.2f}x  (target >= 1.7)")
+    base = times["1 worker, 1 thread"]
+    print(f"speed-up 2 workers vs 1 (1 thread per model): {base / times['2 workers, default threads']:.2f}x"
+          f"  (target >= 1.7)")
+    print(f"speed-up 2 workers vs 1 worker with {cores} threads per model: "
+          f"{times['1 worker, default threads'] / times['2 workers, default threads']:.2f}x")
     print(f"machine: {machine()}")
 
 

@@ -8,7 +8,8 @@ unit-free number (positive = better; -0.1 = the candidate loses a tenth of what 
 gains over naive). Its 95% band adds two variances: the paired bootstrap over holdout rows (both
 predictions rescored on the same resampled rows) and the spread of the per-seed deltas. Calls use
 Holm-corrected p-values over the tasks compared (family-wise 5%), so a ten-task suite does not
-raise a false alarm in one A/A run in five.
+raise a false alarm in one A/A run in five. The aggregate signed-rank test ranks the tasks'
+standardised deltas (delta / its standard error), so the noisiest tasks do not dominate it.
 """
 from __future__ import annotations
 
@@ -54,6 +55,7 @@ class TaskComparison:
     candidate_score: float | None = None
     leakage: str | None = None
     note: str = ""
+    se: float | None = None  # standard error of delta (bootstrap and seed parts combined)
 
 
 @dataclass
@@ -349,7 +351,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
         results.append(TaskComparison(task.name, delta, delta - half, delta + half,
                                       p, None, "same", metric=task.metric,
                                       baseline_score=b_score, candidate_score=c_score,
-                                      leakage=leak))
+                                      leakage=leak, se=float(np.hypot(se_boot, se_seed))))
     valid = [r for r in results if r.delta is not None]
     for r, adjusted in zip(valid, holm([r.p_value for r in valid]) if valid else []):
         r.p_holm = float(adjusted)
@@ -357,7 +359,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
             r.call = "better" if r.delta > 0 else "worse"
     deltas = np.array([r.delta for r in valid])
     median = float(np.median(deltas)) if len(deltas) else None
-    p_all = _signed_rank_p(deltas, tolerance)
+    p_all = _signed_rank_p(deltas, tolerance, np.array([r.se for r in valid]))
     reasons = [f"{r.task} is worse by {r.delta:+.3f} (Holm p {r.p_holm:.3f})"
                for r in valid if r.call == "worse"]
     if median is not None and p_all is not None and median < -tolerance and p_all < ALPHA:
@@ -382,10 +384,18 @@ def _leakage_of(folder: Path, task: str) -> str | None:
     return meta.get("tasks", {}).get(task, {}).get("leakage")
 
 
-def _signed_rank_p(deltas: np.ndarray, tolerance: float) -> float | None:
-    """Two-sided Wilcoxon signed-rank p-value of the task deltas (deltas under the tolerance
-    count as zero and are dropped); None with fewer than two non-zero deltas."""
-    d = np.where(np.abs(deltas) < tolerance, 0.0, deltas)
+def _signed_rank_p(deltas: np.ndarray, tolerance: float, se=None) -> float | None:
+    """Two-sided Wilcoxon signed-rank p-value over the tasks; None with fewer than two non-zero
+    deltas. Deltas under the tolerance count as zero and are dropped. With ``se`` the test ranks
+    the standardised deltas (delta / se): still a signed-rank test of symmetry around zero, but a
+    noisy task (a wide band) no longer outweighs a precise one."""
+    d = np.where(np.abs(deltas) < tolerance, 0.0, np.asarray(deltas, float))
+    if se is not None:
+        se = np.asarray(se, float)
+        exact = se == 0  # seed-invariant models on identical features: no noise at all
+        z = np.divide(d, se, out=np.zeros_like(d), where=~exact)
+        # a non-zero delta without any noise outranks every noisy one
+        d = np.where(exact, np.sign(d) * (np.abs(z).max(initial=0.0) + 1.0), z)
     if np.count_nonzero(d) < 2:
         return None
     return float(stats.wilcoxon(d, zero_method="wilcox", alternative="two-sided").pvalue)

@@ -453,7 +453,8 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
               progress: bool = False, on_event=None,
               job_timeout: float | None = None, procedure: Procedure | None = None,
               seed_offset: int = 0, executor: str = "local",
-              scheduler: str | None = None) -> RunResult:
+              scheduler: str | None = None,
+              threads_per_model: int | None = None) -> RunResult:
     """Run tasks × models × seeds (seeds ``seed_offset`` .. ``seed_offset + K - 1``) and
     append every finished job to OUT.
 
@@ -461,7 +462,8 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
     fails on a task is recorded for that task (``RunResult.task_errors``) and the rest go on.
     Returns a RunResult; per task and model the mean/std of the holdout score over seeds, in
     the task metric's own units and direction (``lower_is_better`` says which).
-    ``executor="dask"`` sends the jobs to the Dask scheduler at ``scheduler``
+    ``threads_per_model`` overrides the thread count each model gets (default: cores //
+    workers, one on a Dask worker). ``executor="dask"`` sends the jobs to the Dask scheduler at ``scheduler``
     (``tcp://HOST:PORT``); each model then uses one thread (start workers with as many
     threads as they have cores to fill them).
     """
@@ -481,6 +483,10 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         raise UserError(f"--job-timeout must be a positive number of seconds, not "
                         f"{job_timeout!r}.")
     threads = 1 if executor == "dask" else max(1, cores // workers)
+    if threads_per_model is not None:  # an explicit choice, e.g. on a machine shared with others
+        if threads_per_model < 1:
+            raise UserError(f"threads_per_model must be at least 1, not {threads_per_model}.")
+        threads = threads_per_model
     out = Path(out) if out is not None else default_out(suite.name)
     store = ResultsStore(out)
     say = on_event or (lambda message: None)
@@ -505,7 +511,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         todo = [j for j in jobs if (j["task"], j["model"], j["seed"]) not in done]
         todo.sort(key=lambda j: -j["cost"])  # longest first balances the workers
         reused = len(jobs) - len(todo)
-        if executor == "local" and 0 < len(todo) < workers:
+        if executor == "local" and threads_per_model is None and 0 < len(todo) < workers:
             # fewer jobs than workers: give each job the cores the idle workers would have had
             threads = max(1, cores // len(todo))
             for job in todo:

@@ -37,6 +37,16 @@ def test_signed_rank_p_is_scipy_wilcoxon():
         stats.wilcoxon(np.delete(deltas, 3)).pvalue)
 
 
+def test_signed_rank_p_on_standardised_deltas_is_scipy_wilcoxon():
+    deltas = np.array([-0.18, 0.002, -0.005, -0.0025, -0.016, 0.0003, -0.07, -0.02])  # synthetic
+    se = np.array([0.2, 0.004, 0.005, 0.02, 0.012, 0.001, 0.15, 0.018])
+    # reference: scipy.stats.wilcoxon on delta / se
+    assert _signed_rank_p(deltas, 0.0, se) == pytest.approx(stats.wilcoxon(deltas / se).pvalue)
+    # a task without noise and no change counts as a zero (dropped), not as a NaN
+    with_exact = _signed_rank_p(np.append(deltas, 0.0), 0.0, np.append(se, 0.0))
+    assert with_exact == pytest.approx(stats.wilcoxon(deltas / se).pvalue)
+
+
 def test_task_delta_band_matches_scipy_bootstrap():
     rng = np.random.default_rng(0)
     y = rng.normal(10, 2, 500)  # synthetic holdout

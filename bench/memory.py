@@ -11,7 +11,6 @@ model's memory, not the harness's.
 """
 import subprocess
 import sys
-import tempfile
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))

@@ -10,7 +10,6 @@ from scipy import stats
 from harness.cli import main
 from harness.compare import _signed_rank_p, _task_delta, compare, holm
 from harness.metrics import METRICS
-from harness.suite import load_suite
 from harness.testing import assert_no_regression
 
 CANDIDATES = Path(__file__).parent / "candidates"

@@ -70,7 +70,7 @@ def test_dask_run_matches_a_local_run(cluster, tmp_path):
     remote = run_suite(out=tmp_path / "dask", executor="dask", scheduler=address, **options)
     # one local worker per core gives each model one thread, as on the Dask workers;
     # LightGBM's float sums depend on the thread count, so that is what must match
-    local = run_suite(out=tmp_path / "local", workers=available_cores(), **options)
+    run_suite(out=tmp_path / "local", workers=available_cores(), **options)
     assert remote.ok == remote.jobs == 12
     a = load_results(tmp_path / "dask").set_index(["task", "model", "seed"]).sort_index()
     b = load_results(tmp_path / "local").set_index(["task", "model", "seed"]).sort_index()

@@ -147,10 +147,15 @@ class ResultsStore:
     def write_predictions(self, task: str, model: str, seed: int, row_id: np.ndarray,
                           prediction: np.ndarray) -> str:
         """Store holdout predictions; returns the path relative to the run folder."""
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
         frame = predictions_frame(row_id, prediction)
         path = self.predictions_path(task, model, seed)
-        buffer = frame.to_parquet(index=False, compression="zstd")
-        atomic_write_bytes(path, buffer)
+        sink = pa.BufferOutputStream()  # pyarrow directly: pandas' to_parquet costs more
+        pq.write_table(pa.Table.from_pandas(frame, preserve_index=False), sink,
+                       compression="zstd")
+        atomic_write_bytes(path, sink.getvalue().to_pybytes())
         return str(path.relative_to(self.folder))
 
 

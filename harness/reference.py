@@ -20,16 +20,13 @@ from .metrics import get_metric
 from .runner import available_cores, library_versions, run_suite
 from .store import (RUN_FILE, STORE_FORMAT, atomic_write_text, load_results,
                     read_predictions)
+from .suite import project_folder
 from .zoo import DEFAULT_ENSEMBLES
 
 
 def published_root() -> Path:
     """The repository's ``results/`` folder."""
-    here = Path(__file__).resolve().parent
-    for candidate in (here.parent / "results", here / "results"):
-        if candidate.is_dir():
-            return candidate
-    return here.parent / "results"
+    return project_folder("results")
 
 
 def resolve_reference(reference: str | Path) -> Path:

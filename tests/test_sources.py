@@ -183,3 +183,52 @@ def test_csv_dates_mixing_iso_8601_date_and_date_time(write_suite):
     # reference: ISO 8601 date and date-time forms, read by Python's datetime.fromisoformat
     assert [ts.to_pydatetime() for ts in frame["d"]] == [dt.datetime.fromisoformat(v)
                                                          for v in values]
+
+
+def test_fingerprint_of_some_rows_equals_fingerprint_of_those_rows_copied():
+    # reference: pandas.util.hash_pandas_object hashes each row from its own values, so the
+    # fingerprint of rows picked by position needs no copy of them (synthetic frame)
+    rng = np.random.default_rng(0)
+    frame = pd.DataFrame({"n": rng.normal(size=50), "k": rng.integers(0, 5, 50),
+                          "s": np.array(list("abcde"), dtype=object)[rng.integers(0, 5, 50)],
+                          "c": pd.Categorical(rng.choice(["x", "y"], 50))})
+    rows = np.sort(rng.choice(50, size=20, replace=False))
+    assert fingerprint(frame, rows=rows) == fingerprint(frame.iloc[rows])
+    assert fingerprint(frame, rows=rows) != fingerprint(frame.iloc[rows[1:]])
+
+
+@pytest.mark.parametrize("values", [
+    ["2020-01-01", "2020-01-01", None, "2021-06-30T12:00:00"],
+    ["2020-01-01T00:00Z", "2020-01-01T01:00Z", "2020-01-01T00:00Z"],
+    ["03/04/2020", "03/04/2020", "2021-05-06"],
+])
+def test_dates_parsed_per_distinct_value_equal_pandas_per_row(values):
+    # reference: pandas.to_datetime on every row (ISO 8601 first, then pandas' mixed parser);
+    # tabpar parses each distinct text once and spreads it (synthetic values)
+    from harness.sources import to_datetimes
+
+    series = pd.Series(values * 3, dtype=object)
+    parsed, problem, row = to_datetimes(series)
+    try:
+        expected = pd.to_datetime(series, format="ISO8601")
+    except ValueError:
+        expected = pd.to_datetime(series, format="mixed")
+    assert problem is None and row is None
+    pd.testing.assert_series_equal(parsed, expected)
+
+
+def test_bad_date_is_reported_at_its_first_row_when_parsed_per_distinct_value():
+    from harness.sources import to_datetimes
+
+    series = pd.Series(["2020-01-01", "soon", "2020-01-02", "soon", "2020-01-01"])  # synthetic
+    parsed, problem, row = to_datetimes(series)
+    assert (problem, row) == ("not a date", 1)
+    assert parsed.isna().tolist() == [False, True, False, True, False]
+
+
+def test_task_frame_has_no_dropped_column_and_its_derived_target_last(suites):
+    task = suites["quick"].task("flights")
+    frame = load_task(task).frame
+    assert not set(task.drop) & set(frame.columns)
+    assert "arr_delay" not in frame.columns  # the derived target's source column
+    assert list(frame.columns)[-1] == task.target  # a derived target comes last, as before

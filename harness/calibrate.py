@@ -35,7 +35,7 @@ from .placement import DEFAULT_TOLERANCE, Placement, place_task, read_prediction
 from .reference import Reference
 from .runner import available_cores, library_versions, load_arrays, prepare_task, run_suite
 from .sources import _close, load_task, parse_dates, read_table
-from .split import encode_target, split_rows
+from .split import as_numbers, encode_target, split_rows
 from .store import atomic_write_text
 from .suite import TASK_TYPES, Holdout, Suite, Task
 from .zoo import DEFAULT_ENSEMBLES, MODELS, check_models
@@ -118,10 +118,8 @@ def calibration_task(data, target: str, type: str | None = None, metric: str | N
     elif type not in TASK_TYPES:
         raise UserError(f"--type '{type}' is unknown; use one of {', '.join(TASK_TYPES)}.")
     if type == "regression" and not numeric:
-        converted = pd.to_numeric(values, errors="coerce")
-        bad = converted.isna() & values.notna()
-        if bad.any():
-            row = int(np.flatnonzero(bad.to_numpy())[0])
+        row = as_numbers(values)[1]
+        if row is not None:
             raise UserError(f"The regression target '{target}' of {where} has the non-numeric "
                             f"value {values.iloc[row]!r} at row {row}; choose a numeric target "
                             f"or pass --type binary or --type multiclass.")

@@ -37,16 +37,23 @@ class Target:
     classes: list  # class labels in index order (binary: [other, positive]); [] for regression
 
 
+def as_numbers(values: pd.Series):
+    """(the values as numbers, NaN where missing; position of the first value that is given but
+    is not a number, or None)."""
+    converted = pd.to_numeric(values, errors="coerce")
+    bad = (converted.isna() & values.notna()).to_numpy()
+    return converted, (int(np.flatnonzero(bad)[0]) if bad.any() else None)
+
+
 def encode_target(loaded: LoadedTask) -> Target:
+    """The task's target as numbers (see Target); UserError naming the first bad value."""
     task = loaded.task
     series = loaded.frame[task.target]
     where = f"target '{task.target}' of task '{task.name}'"
     if task.type == "regression":
         if not pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series):
-            converted = pd.to_numeric(series, errors="coerce")
-            bad = converted.isna() & series.notna()
-            if bad.any():
-                row = int(np.flatnonzero(bad.to_numpy())[0])
+            converted, row = as_numbers(series)
+            if row is not None:
                 raise UserError(f"The regression {where} has a non-numeric value "
                                 f"{series.iloc[row]!r} at row {loaded.row_ids[row]}; use a numeric "
                                 f"target or "
@@ -66,7 +73,6 @@ def encode_target(loaded: LoadedTask) -> Target:
                             f"{loaded.row_ids[row]}, "
                             f"but RMSLE needs values >= 0; use metric rmse or fix the data.")
         return Target(values=values, classes=[])
-    labels = series.to_numpy()
     present = pd.unique(series)
     if task.type == "binary":
         positive = task.positive
@@ -82,15 +88,19 @@ def encode_target(loaded: LoadedTask) -> Target:
         if len(present) < 2:
             raise UserError(f"The {where} has a single class ({present[0]!r}); there is nothing "
                             f"to tell apart; choose a target with two classes.")
-        y = (series.astype(str) == str(matches[0])).to_numpy().astype(int)
+        # compared as text, as the suite file gives it; on the distinct values, then per row
+        codes, uniques = pd.factorize(series)
+        is_positive = np.array([str(v) == str(matches[0]) for v in uniques], dtype=int)
         others = [v for v in present if str(v) != str(matches[0])]
-        return Target(values=y, classes=[others[0], matches[0]])
+        return Target(values=is_positive[codes], classes=[others[0], matches[0]])
     classes = sorted(present, key=str)
     if len(classes) < 2:
         raise UserError(f"The {where} has a single class ({classes[0]!r}); there is nothing to "
                         f"tell apart; choose a target with two or more classes.")
     index = {str(c): i for i, c in enumerate(classes)}
-    return Target(values=np.array([index[str(v)] for v in labels], dtype=int), classes=classes)
+    codes, uniques = pd.factorize(series)
+    return Target(values=np.array([index[str(v)] for v in uniques], dtype=int)[codes],
+                  classes=classes)
 
 
 def _time_split(loaded: LoadedTask):
@@ -105,7 +115,8 @@ def _time_split(loaded: LoadedTask):
         notes.append(f"left out {int((~known).sum()):,} rows with no {hold.date} (cannot be "
                      f"placed in time)")
     positions = np.flatnonzero(known)
-    stamps = dates.to_numpy()[positions]
+    # as UTC instants: a time-zone-aware column would otherwise give Timestamp objects
+    stamps = dates.to_numpy(dtype="datetime64[ns]")[positions]
     order = np.argsort(stamps, kind="stable")
     n = len(positions)
     if hold.cutoff is not None:

@@ -77,20 +77,20 @@ def median_from_counts(values: np.ndarray, counts: np.ndarray) -> float:
 
 
 def _date_fields(dates: pd.Series):
-    """(per-row fields, per-distinct-date fields, their row counts) — calendar_fields worked
-    out on the distinct dates only; missing dates are NaN rows."""
+    """(code of each row's distinct date, -1 if missing; calendar_fields of the distinct dates;
+    each distinct date's row count). Fields are worked out once per distinct date and only
+    spread to the rows when the output is written."""
     codes, uniques = pd.factorize(dates, use_na_sentinel=True)
     fields = calendar_fields(pd.Series(uniques))
-    if len(uniques) == 0:  # every date missing
-        return (np.full((len(dates), len(CALENDAR_FIELDS)), np.nan), fields,
-                np.zeros(0, dtype=np.int64))
-    rows = fields[np.maximum(codes, 0)]
-    rows[codes < 0] = np.nan
     counts = np.bincount(codes[codes >= 0], minlength=len(uniques))
-    return rows, fields, counts
+    return codes, fields, counts
 
 
 def _numeric(series: pd.Series) -> np.ndarray:
+    """The column as a NumPy array, a view where pandas allows it (int, float, bool); nullable
+    dtypes give float64 with NaN for missing."""
+    if isinstance(series.dtype, np.dtype):
+        return series.to_numpy()
     return series.to_numpy(dtype=np.float64, na_value=np.nan)
 
 
@@ -194,8 +194,8 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 continue
             if _is_date(series):
                 self.roles_[col] = "date"
-                rows, distinct, counts = _date_fields(series)
-                work[col] = rows
+                codes, distinct, counts = _date_fields(series)
+                work[col] = (codes, distinct)
                 gaps = bool(counts.sum() < len(series))
                 if self.fill == "median":
                     stat = [median_from_counts(distinct[:, k], counts)
@@ -207,8 +207,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
             elif _is_numeric(series) and col not in ordinal:
                 self.roles_[col] = "numeric"
                 values = _numeric(series)
-                work[col] = values
-                gap = np.isnan(values)
+                gap = np.isnan(values) if values.dtype.kind == "f" else np.zeros(len(values), bool)
                 gaps = bool(gap.any())
                 stat = (_column_median(series, values, gap) if self.fill == "median"
                         else float(np.nanmean(values)) if (~gap).any() else 0.0)
@@ -245,18 +244,22 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
             if role == "dropped":
                 continue
             if role == "date":
-                fields = work[col] if col in work else _date_fields(X[col])[0]
-                gap = np.isnan(fields[:, 0])
-                if gap.any():
-                    fields[gap] = self.medians_[col]
-                out[:, j:j + fields.shape[1]] = fields
-                j += fields.shape[1]
+                codes, distinct = work[col] if col in work else _date_fields(X[col])[:2]
+                # one row past the distinct dates holds the fill: missing dates (code -1) get it
+                table = np.vstack([distinct, self.medians_[col][None, :]])
+                for k in range(table.shape[1]):
+                    out[:, j + k] = table[codes, k]
+                j += table.shape[1]
+                gap = codes < 0
             elif role == "numeric":
-                values = work[col] if col in work else _numeric(X[col])
-                gap = np.isnan(values)
+                values = _numeric(X[col])  # read again, not kept from fit: saves a copy
                 out[:, j] = values
-                if gap.any():
-                    out[gap, j] = self.medians_[col]
+                if values.dtype.kind == "f":
+                    gap = np.isnan(values)
+                    if gap.any():
+                        out[gap, j] = self.medians_[col]
+                else:
+                    gap = None  # int and bool columns cannot have gaps
                 j += 1
             else:
                 codes, uniques = work[col] if col in work else pd.factorize(
@@ -277,7 +280,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                     j += 1
                 gap = None
             if col in self.flagged_:
-                flags[col] = gap
+                flags[col] = False if gap is None else gap
         for col in self.flagged_:
             out[:, j] = flags[col]
             j += 1

@@ -486,3 +486,26 @@ def test_prepared_task_learns_only_from_training_rows(write_suite, tmp_path):
     p2, arrays2 = prepared(changed, "second")
     np.testing.assert_array_equal(np.asarray(arrays["X_train"]), np.asarray(arrays2["X_train"]))
     assert p2.feature_names == names
+
+
+def test_integer_column_in_transform_after_gaps_in_training_gets_flag_zero():
+    # training rows with gaps give a flag column; later rows stored as integers have no gaps
+    # reference: sklearn.impute.SimpleImputer(strategy="median", add_indicator=True)
+    train = pd.DataFrame({"n": [1.0, np.nan, 3.0, 8.0]})  # synthetic
+    later = pd.DataFrame({"n": np.array([5, 6], dtype=np.int64)})
+    ours = BaselinePrep().fit(train)
+    reference = SimpleImputer(strategy="median", add_indicator=True).fit(train)
+    np.testing.assert_allclose(ours.transform(later), reference.transform(later.astype(float)))
+
+
+def test_date_column_missing_on_every_training_row():
+    # no date to learn from: fields are filled with 0 and flagged (synthetic frame)
+    train = pd.DataFrame({"when": pd.to_datetime([None, None, None]), "x": [1, 2, 3]})
+    later = pd.DataFrame({"when": pd.to_datetime(["2024-02-29", None]), "x": [4, 5]})
+    prep = BaselinePrep().fit(train)
+    names = list(prep.get_feature_names_out())
+    out = pd.DataFrame(prep.transform(later), columns=names)
+    assert out.loc[1, "when__year"] == 0 and out.loc[1, "when__missing"] == 1
+    # reference: ISO 8601 via datetime.date.isocalendar (2024-02-29 is in ISO week 9)
+    assert out.loc[0, "when__week"] == dt.date(2024, 2, 29).isocalendar().week
+    assert out.loc[0, "when__missing"] == 0

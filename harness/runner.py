@@ -7,6 +7,7 @@ array crosses a pipe. Jobs run in ``spawn``-started worker processes, each model
 """
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import os
@@ -20,6 +21,7 @@ from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from .errors import UserError
 from .metrics import get_metric
@@ -41,15 +43,19 @@ def tabpar_version() -> str:
 
 
 def library_versions() -> dict:
-    """Versions of everything that can change a score."""
-    import lightgbm
-    import pandas
-    import sklearn
-    import xgboost
+    """Versions of everything that can change a score (read from the installed packages'
+    metadata, so no model library is imported for it)."""
+    from importlib.metadata import PackageNotFoundError, version
 
-    return {"python": platform.python_version(), "numpy": np.__version__,
-            "pandas": pandas.__version__, "scikit-learn": sklearn.__version__,
-            "xgboost": xgboost.__version__, "lightgbm": lightgbm.__version__,
+    def installed(name):
+        try:
+            return version(name)
+        except PackageNotFoundError:
+            return None
+
+    return {"python": platform.python_version(), "numpy": installed("numpy"),
+            "pandas": installed("pandas"), "scikit-learn": installed("scikit-learn"),
+            "xgboost": installed("xgboost"), "lightgbm": installed("lightgbm"),
             "tabpar": tabpar_version()}
 
 
@@ -171,10 +177,15 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
                         f"its target; keep at least one column to predict from.")
     _check_finite(features, task, loaded.row_ids)
     train, holdout = features.iloc[split.train], features.iloc[split.holdout]
+    row_ids, notes, fingerprint = loaded.row_ids, loaded.notes, loaded.fingerprint
+    del features, loaded  # the task's rows now live in train and holdout only (memory)
     transformer = procedure.build(task)
+    check_leakage = procedure.key != builtin().key  # the built-in one is tested, not checked
     try:
         X_train = _as_features(transformer.fit_transform(train), len(train), procedure, task,
                                "training")
+        if not check_leakage:
+            train = None  # not needed again: free its rows before the holdout is prepared
         X_hold = _as_features(transformer.transform(holdout), len(holdout), procedure, task,
                               "holdout")
     except UserError:
@@ -188,8 +199,8 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
         raise UserError(f"Procedure '{procedure.name}' made {X_train.shape[1]} features for the "
                         f"training rows but {X_hold.shape[1]} for the holdout rows of task "
                         f"'{task.name}'; it must learn its columns in fit.")
-    leakage = (None if procedure.key == builtin().key
-               else _leakage_check(transformer, train, holdout, X_train, X_hold))
+    leakage = (_leakage_check(transformer, train, holdout, X_train, X_hold) if check_leakage
+               else None)
     if hasattr(transformer, "get_feature_names_out"):
         try:
             names = [str(n) for n in transformer.get_feature_names_out()]
@@ -199,11 +210,11 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
         names = [f"f{i}" for i in range(X_train.shape[1])]
     arrays = {"X_train": X_train, "X_holdout": X_hold,
               "y_train": target.values[split.train], "y_holdout": target.values[split.holdout],
-              "row_id": loaded.row_ids[split.holdout]}
-    meta = {"fingerprint": loaded.fingerprint, "classes": [_plain(c) for c in target.classes],
+              "row_id": row_ids[split.holdout]}
+    meta = {"fingerprint": fingerprint, "classes": [_plain(c) for c in target.classes],
             "feature_names": names, "n_train": len(split.train),
             "n_holdout": len(split.holdout), "split_description": split.description,
-            "notes": loaded.notes + split.notes, "procedure": procedure.name,
+            "notes": notes + split.notes, "procedure": procedure.name,
             "leakage": leakage}
     tmp = folder.with_name(folder.name + f".tmp{os.getpid()}")
     tmp.mkdir(parents=True, exist_ok=True)
@@ -231,16 +242,16 @@ def _plain(value):
 
 def _check_finite(features, task: Task, row_ids) -> None:
     """UserError for an infinite value (``row_ids``: each row's position in the source)."""
-    numeric = features.select_dtypes("number")
-    if numeric.empty:
-        return
-    values = numeric.to_numpy(dtype=np.float64, na_value=np.nan)
-    bad = np.isinf(values)
-    if bad.any():
-        row, col = map(int, np.argwhere(bad)[0])
-        raise UserError(f"Column '{numeric.columns[col]}' of task '{task.name}' has an infinite "
-                        f"value at row {int(row_ids[row])}; replace it with a finite number or "
-                        f"leave it blank.")
+    for name in features.columns:  # one column at a time: no copy of the whole table
+        column = features[name]
+        if not pd.api.types.is_float_dtype(column):  # only floats can hold infinity
+            continue
+        bad = np.isinf(column.to_numpy(dtype=np.float64, na_value=np.nan))
+        if bad.any():
+            row = int(np.flatnonzero(bad)[0])
+            raise UserError(f"Column '{name}' of task '{task.name}' has an infinite value at "
+                            f"row {int(row_ids[row])}; replace it with a finite number or leave "
+                            f"it blank.")
 
 
 def cache_info(cache_dir: Path | None = None) -> dict:
@@ -288,26 +299,27 @@ def _predict(model, X, task_type: str, n_classes: int, log_target: bool):
     return full[:, 1] if task_type == "binary" else full
 
 
-@lru_cache(maxsize=1)
-def _thread_pools():
-    """One threadpoolctl controller per process: finding the loaded BLAS/OpenMP libraries
-    takes milliseconds, which every job would otherwise pay again."""
+@lru_cache(maxsize=None)
+def _thread_pools(library: str):
+    """One threadpoolctl controller per process and model library: finding the loaded
+    BLAS/OpenMP libraries takes milliseconds, which every job would otherwise pay again. The
+    model's library is imported first, as its OpenMP runtime must be loaded to be found; a
+    process never imports a library none of its models uses (memory)."""
+    import importlib
+
     from threadpoolctl import ThreadpoolController
 
-    import lightgbm  # noqa: F401  (its OpenMP runtime must be loaded to be found)
-    import sklearn.ensemble  # noqa: F401
-    import xgboost  # noqa: F401
-
+    importlib.import_module(library)
     return ThreadpoolController()
 
 
-def warm_imports() -> None:
-    """Import every model library once, in a fresh worker, before its first job."""
-    import lightgbm  # noqa: F401
-    import sklearn.ensemble  # noqa: F401
+def warm_imports(models=None) -> None:
+    """Import the libraries of ``models`` (default: every model) once, in a fresh worker,
+    before its first job, so a job's time limit measures the job alone."""
+    for name in models or MODELS:
+        _thread_pools(MODELS[name].library)
     import sklearn.linear_model  # noqa: F401
-    import threadpoolctl  # noqa: F401
-    import xgboost  # noqa: F401
+    import sklearn.dummy  # noqa: F401
 
 
 def execute_job(job: dict) -> dict:
@@ -331,7 +343,7 @@ def execute_job(job: dict) -> dict:
         X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
         y_fit = np.log1p(y_train) if job["log_target"] else y_train
         model = build_model(job["model"], task_type, job["seed"], job["threads"])
-        with _thread_pools().limit(limits=job["threads"]):
+        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]):
             t0 = time.perf_counter()
             model.fit(X_train, y_fit)
             t1 = time.perf_counter()
@@ -622,7 +634,8 @@ def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
             for job in todo:  # in this process: no start-up cost, easy to debug
                 on_result(job, execute_job(job))
         else:
-            LocalPool(execute_job, workers, job_timeout, initializer=warm_imports).run(
+            warm = functools.partial(warm_imports, sorted({job["model"] for job in todo}))
+            LocalPool(execute_job, workers, job_timeout, initializer=warm).run(
                 todo, on_result, on_lost)
         return False
     except KeyboardInterrupt:

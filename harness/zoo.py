@@ -25,6 +25,7 @@ class ModelSpec:
     # classification: medians over the default reference's jobs (2026, 2 cores); used to start
     # the longest jobs first and to estimate a job's time against a budget
     costs: tuple
+    library: str = "sklearn.ensemble"  # the module its fit runs in (imported before the job)
 
     def cost(self, task_type: str) -> float:
         """Rough fit seconds per million training cells for ``task_type`` (one thread)."""
@@ -96,8 +97,8 @@ MODELS: dict[str, ModelSpec] = {
         ModelSpec("rf", "random forest (scikit-learn)", _rf, True, (32.0, 9.7)),
         ModelSpec("et", "extra trees (scikit-learn)", _et, True, (15.7, 7.4)),
         ModelSpec("hgb", "histogram gradient boosting (scikit-learn)", _hgb, True, (2.2, 4.3)),
-        ModelSpec("xgb", "XGBoost", _xgb, True, (1.5, 3.6)),
-        ModelSpec("lgbm", "LightGBM", _lgbm, True, (0.8, 3.4)),
+        ModelSpec("xgb", "XGBoost", _xgb, True, (1.5, 3.6), library="xgboost"),
+        ModelSpec("lgbm", "LightGBM", _lgbm, True, (0.8, 3.4), library="lightgbm"),
     ]
 }
 

@@ -44,3 +44,22 @@ def test_compare_reuses_the_published_reference_when_everything_matches(tmp_path
                      out=tmp_path, workers=1)
     # reused only when library versions and the preparing code are those the reference used
     assert result.reused_baseline_jobs == (2 if same else 0)
+
+
+def test_versions_are_the_installed_packages_and_a_run_imports_only_its_models_libraries(
+        tmp_path):
+    # reference: importlib.metadata, the installed distributions
+    import subprocess
+    import sys
+    from importlib.metadata import version
+
+    versions = library_versions()
+    for name in ("numpy", "pandas", "scikit-learn", "xgboost", "lightgbm"):
+        assert versions[name] == version(name)
+    # a run of naive + LightGBM in one process never loads XGBoost (memory: about 18 MB)
+    code = ("import sys; from harness.runner import run_suite; "
+            "run_suite('quick', tasks=['mlc_churn'], models=['naive', 'lgbm'], seeds=1, "
+            f"out={str(tmp_path / 'out')!r}, workers=1); print('xgboost' in sys.modules)")
+    shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                           check=True).stdout.split()
+    assert shown[-1] == "False"

@@ -246,9 +246,9 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
             if role == "date":
                 codes, distinct = work[col] if col in work else _date_fields(X[col])[:2]
                 # one row past the distinct dates holds the fill: missing dates (code -1) get it
-                table = np.vstack([distinct, self.medians_[col][None, :]])
-                for k in range(table.shape[1]):
-                    out[:, j + k] = table[codes, k]
+                table = np.vstack([distinct, self.medians_[col][None, :]]).astype(np.float32)
+                for k in range(table.shape[1]):  # each output column written in one pass
+                    np.take(np.ascontiguousarray(table[:, k]), codes, out=out[:, j + k])
                 j += table.shape[1]
                 gap = codes < 0
             elif role == "numeric":
@@ -266,17 +266,18 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                     X[col], use_na_sentinel=True)
                 # learned level index of each distinct value (-1: unseen), then of each row
                 mapped = self.categories_[col].get_indexer(np.asarray(uniques, dtype=object))
-                row_codes = np.where(codes >= 0, mapped[codes], -1) if len(mapped) else \
-                    np.full(len(codes), -1)
+                # the last entry is for missing rows (code -1)
+                lookup = np.append(mapped, -1)
                 if role == "one_hot":
+                    row_codes = lookup[codes]
                     levels = len(self.categories_[col])
                     block = out[:, j:j + levels]
                     block[:] = 0
                     seen = row_codes >= 0
                     block[np.flatnonzero(seen), row_codes[seen]] = 1
                     j += levels
-                else:
-                    out[:, j] = row_codes + 1  # 0 = missing or unseen
+                else:  # 0 = missing or unseen, else 1..K, written in one pass
+                    np.take((lookup + 1).astype(np.float32), codes, out=out[:, j])
                     j += 1
                 gap = None
             if col in self.flagged_:

@@ -33,7 +33,8 @@ from .export import describe, write_split
 from .metrics import DEFAULT_METRIC, get_metric
 from .placement import DEFAULT_TOLERANCE, Placement, place_task, read_predictions_file
 from .reference import Reference
-from .runner import available_cores, library_versions, load_arrays, prepare_task, run_suite
+from .runner import (available_cores, connect_check, library_versions, load_arrays, prepare_task,
+                     run_suite)
 from .sources import _close, load_task, parse_dates, read_table
 from .split import as_numbers, encode_target, split_rows
 from .store import atomic_write_text
@@ -297,7 +298,8 @@ def zoo_order(models=None, task_type: str = "regression") -> list[str]:
     return sorted(names, key=lambda m: MODELS[m].cost(task_type))
 
 
-def _run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate, say):
+def _run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate, say,
+             executor="local", scheduler=None):
     """Run ``order`` one model at a time; stop starting models the budget cannot hold.
 
     ``rate``: seconds per unit of ``MODELS[m].cost`` per round of seeds, first from the
@@ -321,7 +323,8 @@ def _run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate
                     f"{max(left, 0):.1f} s left)")
                 continue
         t0 = time.monotonic()
-        result = run_suite(suite, models=[model], seeds=seeds, out=out_run, workers=workers)
+        result = run_suite(suite, models=[model], seeds=seeds, out=out_run, workers=workers,
+                           executor=executor, scheduler=scheduler)
         seconds = time.monotonic() - t0
         failures += [{k: r.get(k) for k in ("model", "seed", "status", "error")}
                      for r in result.failures]
@@ -660,7 +663,8 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
               cutoff: str | None = None, drop=(), score: float | None = None,
               predictions=None, seeds: int = 1, models=None, budget: float | None = None,
               out=None, workers: int | None = None, reference: str = "default",
-              tolerance: float = DEFAULT_TOLERANCE, on_event=None) -> Calibration:
+              tolerance: float = DEFAULT_TOLERANCE, on_event=None, executor: str = "local",
+              scheduler: str | None = None) -> Calibration:
     """Place ``score`` (or a ``predictions`` file: columns row_id, prediction) on the user's own
     table against the baseline procedure and zoo run on the same split.
 
@@ -669,6 +673,8 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
     the input raises UserError before anything is written. ``budget`` (seconds) bounds the wall
     time of the diagnostics and the zoo: models run cheapest first and a model whose estimated
     time does not fit is skipped (the naive floor and one default ensemble always run).
+    ``executor="dask"`` runs the zoo's jobs on the Dask cluster at ``scheduler`` (the prepared
+    arrays are sent to it); the diagnostics and the placement run in this process.
     """
     started = time.monotonic()
     say = on_event or (lambda message: None)
@@ -679,6 +685,7 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         raise UserError(f"--score {score!r} is not a finite number; give your holdout score in "
                         f"the metric.")
     zoo_order(models)  # an unknown model fails before any work
+    connect_check(scheduler, executor, None)  # an unusable cluster fails before any work too
     if isinstance(seeds, bool) or not isinstance(seeds, int) or seeds < 1:
         raise UserError(f"--seeds must be a positive whole number, not {seeds!r}.")
     if budget is not None and not budget > 0:
@@ -723,7 +730,8 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
                   description="tabpar calibrate on the user's own data", tasks=[task])
     run_dir = out / "run"
     ran, skipped, failures, overrun = _run_zoo(suite, order, seeds, run_dir, workers,
-                                               zoo_budget, started, rate, say)
+                                               zoo_budget, started, rate, say,
+                                               executor=executor, scheduler=scheduler)
     ensembles = [m for m in ran if m in DEFAULT_ENSEMBLES]
     if "naive" not in ran or not ensembles:
         raise RuntimeError(f"the naive floor or every default ensemble failed on {task.name}: "

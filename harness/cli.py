@@ -312,7 +312,8 @@ def cmd_calibrate(args) -> int:
     say = (lambda m: print(f"  {m}", file=sys.stderr)) if progress else None
     result = calibrate(args.data, args.target, score=args.score, predictions=args.predictions,
                        seeds=args.seeds, models=args.models, budget=args.budget, out=args.out,
-                       reference=args.reference, on_event=say, **options)
+                       reference=args.reference, on_event=say, executor=args.executor,
+                       scheduler=args.scheduler, **options)
     print(json.dumps(result.to_dict(), indent=2) if args.json else result)
     return 0
 
@@ -581,6 +582,7 @@ def build_parser() -> argparse.ArgumentParser:
                      help="suite reference whose tasks the difficulty is placed among "
                           "(default: default)")
     cal.add_argument("--json", action="store_true", help="print one JSON object")
+    _executor_options(cal)
     cal.set_defaults(func=cmd_calibrate)
 
     suites = sub.add_parser("suites", help="list the built-in suites and their tasks")

@@ -94,6 +94,14 @@ def _numeric(series: pd.Series) -> np.ndarray:
     return series.to_numpy(dtype=np.float64, na_value=np.nan)
 
 
+def _value_codes(series: pd.Series):
+    """(each row's index into ``values``, -1 if missing; ``values``). A categorical column gives
+    its own codes and levels (no hashing of the rows); any other is factorised once."""
+    if isinstance(series.dtype, pd.CategoricalDtype):
+        return series.cat.codes.to_numpy(), series.cat.categories
+    return pd.factorize(series, use_na_sentinel=True)
+
+
 def _column_median(series: pd.Series, values: np.ndarray, gap: np.ndarray) -> float:
     """Median of the non-missing values (NaN if none), by counting for small-range integers."""
     if pd.api.types.is_integer_dtype(series) and not gap.any() and len(values):
@@ -215,15 +223,16 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 names.append(str(col))
             else:
                 gaps = False  # missing is its own code (0), no flag needed
-                codes, uniques = pd.factorize(series, use_na_sentinel=True)
+                codes, values = _value_codes(series)
                 if col in ordinal:
                     levels = list(ordinal[col])
                 elif isinstance(series.dtype, pd.CategoricalDtype) and series.dtype.ordered:
                     levels = list(series.dtype.categories)
-                else:
-                    levels = _sorted_levels(np.asarray(uniques, dtype=object))
+                else:  # the values these rows hold (a categorical's unused levels are not)
+                    held = np.bincount(codes[codes >= 0], minlength=len(values)) > 0
+                    levels = _sorted_levels(np.asarray(values, dtype=object)[held])
                 self.categories_[col] = pd.Index(levels, dtype=object)
-                work[col] = (codes, uniques)
+                work[col] = (codes, values)
                 if 0 < len(levels) <= self.one_hot_max_levels:
                     self.roles_[col] = "one_hot"
                     names += [f"{col}=={level}" for level in levels]
@@ -262,8 +271,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                     gap = None  # int and bool columns cannot have gaps
                 j += 1
             else:
-                codes, uniques = work[col] if col in work else pd.factorize(
-                    X[col], use_na_sentinel=True)
+                codes, uniques = work[col] if col in work else _value_codes(X[col])
                 # learned level index of each distinct value (-1: unseen), then of each row
                 mapped = self.categories_[col].get_indexer(np.asarray(uniques, dtype=object))
                 # the last entry is for missing rows (code -1)

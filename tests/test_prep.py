@@ -303,6 +303,20 @@ def test_codes_match_ordinal_encoder(kind):
     assert (got[~unseen_or_missing] >= 1).all()
 
 
+def test_categorical_levels_unused_in_training_rows_are_unseen():
+    # a categorical declares every level of its source, but codes are learned from the levels
+    # the training rows hold; reference: OrdinalEncoder learns its categories from the values
+    levels = LEVELS + ["hotel"]  # "hotel" is declared and never used in training
+    train = synthetic_categories(200, 5)
+    test = synthetic_categories(60, 6, pool=levels)
+    dtype = pd.CategoricalDtype(levels)
+    prep = BaselinePrep().fit(pd.DataFrame({"c": pd.Series(train, dtype=dtype)}))
+    got = prep.transform(pd.DataFrame({"c": pd.Series(test, dtype=dtype)}))[:, 0]
+    assert "hotel" not in list(prep.categories_["c"]) and "hotel" in test
+    np.testing.assert_array_equal(got, reference_codes(train, test))
+    assert (got[np.array([v == "hotel" for v in test])] == 0).all()
+
+
 def test_ordinal_order_is_honoured():
     order = ["Fair", "Good", "Very Good", "Premium", "Ideal"]  # synthetic quality grades
     train = synthetic_categories(100, 3, pool=order)

@@ -7,6 +7,7 @@ array crosses a pipe. Jobs run in ``spawn``-started worker processes, each model
 """
 from __future__ import annotations
 
+import ctypes
 import functools
 import hashlib
 import json
@@ -158,6 +159,7 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     or reuse its cached arrays."""
     procedure = procedure or builtin()
     loaded = load_task(task)
+    release_freed_memory()  # the source frame, read and dropped by load_task
     key_text = json.dumps({"task": task.key(), "fingerprint": loaded.fingerprint,
                            "procedure": procedure.key, "tabpar": tabpar_version(),
                            "code": preparation_code_digest()},
@@ -167,6 +169,8 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     meta_path = folder / "meta.json"
     if meta_path.exists():
         meta = json.loads(meta_path.read_text())
+        del loaded
+        release_freed_memory()
         return PreparedTask(task=task, folder=folder, **meta)
 
     target = encode_target(loaded)
@@ -179,6 +183,7 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     train, holdout = features.iloc[split.train], features.iloc[split.holdout]
     row_ids, notes, fingerprint = loaded.row_ids, loaded.notes, loaded.fingerprint
     del features, loaded  # the task's rows now live in train and holdout only (memory)
+    release_freed_memory()  # the source frame and the task's frame are gone: hand them back
     transformer = procedure.build(task)
     check_leakage = procedure.key != builtin().key  # the built-in one is tested, not checked
     try:
@@ -234,6 +239,20 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
 
         shutil.rmtree(tmp, ignore_errors=True)
     return PreparedTask(task=task, folder=folder, **meta)
+
+
+def release_freed_memory() -> None:
+    """Hand memory that has been freed back to the operating system, where glibc allows it.
+
+    glibc keeps freed heap pages mapped, so without this a process's resident memory would
+    still count the source frame it dropped; ``malloc_trim`` returns them. A no-op elsewhere.
+    """
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        ctypes.CDLL("libc.so.6").malloc_trim(0)
+    except (OSError, AttributeError):  # not glibc (e.g. musl): nothing to do
+        pass
 
 
 def _plain(value):
@@ -327,6 +346,13 @@ def execute_job(job: dict) -> dict:
 
     Never raises for a model's own failure: the row then has status 'failed' and the error.
     """
+    result = _fit_and_score(job)
+    release_freed_memory()  # the model and its arrays are gone: the next job starts lower
+    return result
+
+
+def _fit_and_score(job: dict) -> dict:
+    """execute_job's work; its locals (model, arrays) are freed when it returns."""
     started = datetime.now(timezone.utc).isoformat(timespec="seconds")
     row = {"task": job["task"], "model": job["model"], "seed": job["seed"],
            "metric": job["metric"], "lower_is_better": job["lower_is_better"],

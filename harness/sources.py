@@ -293,7 +293,9 @@ def load_task(task: Task) -> LoadedTask:
         keep = keep[np.sort(rng.choice(len(keep), size=task.max_rows, replace=False))]
     # the source's own rows, as read, before any parsing: stable across code changes
     try:
-        digest = fingerprint(raw, rows=keep)
+        # a small sample is cheaper to copy than the whole source is to hash; else no copy
+        digest = (fingerprint(raw.iloc[keep]) if len(keep) < len(raw) // 2
+                  else fingerprint(raw, rows=keep))
     except TypeError:  # a cell holding a list, an array or a dict cannot be hashed
         bad = next(c for c in raw.columns if _unhashable(raw[c]))
         raise UserError(f"Column '{bad}' of {task.source} holds lists or other nested values; "

@@ -685,7 +685,6 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         raise UserError(f"--score {score!r} is not a finite number; give your holdout score in "
                         f"the metric.")
     zoo_order(models)  # an unknown model fails before any work
-    connect_check(scheduler, executor, None)  # an unusable cluster fails before any work too
     if isinstance(seeds, bool) or not isinstance(seeds, int) or seeds < 1:
         raise UserError(f"--seeds must be a positive whole number, not {seeds!r}.")
     if budget is not None and not budget > 0:
@@ -704,6 +703,7 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
                         f"prediction column (a value or a positive-class probability), so give "
                         f"--score instead.")
     order = zoo_order(models, task.type)
+    connect_check(scheduler, executor, None)  # after the data's checks, before any work
     say(f"preparing {task.name}")
     prepared = prepare_task(task)  # every load/split/prep mistake surfaces here, before OUT
     if predictions is not None:

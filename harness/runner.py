@@ -566,7 +566,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
             for job in todo:
                 job["threads"] = threads
         if todo or meta != old_meta:
-            # (importing the model libraries for their versions is skipped on a no-op rerun)
+            # (skipped on a no-op rerun, which then writes nothing)
             meta["versions"] = library_versions()
             meta["cores"], meta["workers"], meta["threads_per_model"] = cores, workers, threads
             meta["executor"] = executor if executor == "local" else f"dask {scheduler}"

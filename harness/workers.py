@@ -77,7 +77,7 @@ class _Worker:
         self.process.join(timeout=5)
         if self.process.is_alive():
             self.process.kill()
-            self.process.join()
+            self.process.join(timeout=5)  # bounded: a stop must never hang the run's exit
         self.conn.close()
 
 

@@ -258,8 +258,11 @@ def tabpar_process(args, env, cwd: Path, logs: Path):
     on the way out, whatever the test did."""
     logs.mkdir(parents=True, exist_ok=True)
     with open(logs / "stdout.txt", "w") as out, open(logs / "stderr.txt", "w") as err:
+        # SIGINT as an interactive shell leaves it: a test run started in the background
+        # inherits it ignored, and Python then never turns Ctrl-C into KeyboardInterrupt
         proc = subprocess.Popen([sys.executable, "-m", "harness.cli", *args], cwd=cwd, env=env,
-                                stdout=out, stderr=err, start_new_session=True)
+                                stdout=out, stderr=err, start_new_session=True,
+                                preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
         try:
             yield proc
         finally:

@@ -159,7 +159,6 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     or reuse its cached arrays."""
     procedure = procedure or builtin()
     loaded = load_task(task)
-    release_freed_memory()  # the source frame, read and dropped by load_task
     key_text = json.dumps({"task": task.key(), "fingerprint": loaded.fingerprint,
                            "procedure": procedure.key, "tabpar": tabpar_version(),
                            "code": preparation_code_digest()},
@@ -170,7 +169,7 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     if meta_path.exists():
         meta = json.loads(meta_path.read_text())
         del loaded
-        release_freed_memory()
+        release_freed_memory()  # the source and task frames are gone: hand their pages back
         return PreparedTask(task=task, folder=folder, **meta)
 
     target = encode_target(loaded)
@@ -512,9 +511,9 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
     Returns a RunResult; per task and model the mean/std of the holdout score over seeds, in
     the task metric's own units and direction (``lower_is_better`` says which).
     ``threads_per_model`` overrides the thread count each model gets (default: cores //
-    workers, one on a Dask worker). ``executor="dask"`` sends the jobs to the Dask scheduler at ``scheduler``
-    (``tcp://HOST:PORT``); each model then uses one thread (start workers with as many
-    threads as they have cores to fill them).
+    workers, one on a Dask worker). ``executor="dask"`` sends the jobs to the Dask scheduler
+    at ``scheduler`` (``tcp://HOST:PORT``); each model then uses one thread (start workers
+    with as many threads as they have cores to fill them).
     """
     procedure = procedure or builtin()
     connect_check(scheduler, executor, job_timeout)

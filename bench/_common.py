@@ -15,7 +15,7 @@ def best_of(function, repeats=3):
 
 
 def machine() -> str:
-    from harness.runner import available_cores, library_versions
+    from tabpar.execution.runner import available_cores, library_versions
 
     try:
         with open("/proc/meminfo") as handle:

@@ -85,7 +85,7 @@ def main() -> int:
     parser.add_argument("--keep", action="store_true", help="keep the output folder")
     args = parser.parse_args()
 
-    from harness.runner import library_versions
+    from tabpar.execution.runner import library_versions
 
     work = Path(tempfile.mkdtemp(prefix="tabpar-bench-calibrate-"))
     data = work / "synthetic.parquet"
@@ -93,7 +93,7 @@ def main() -> int:
     out = work / "out"
     score = "60" if args.type == "regression" else "0.7"
     script = Path(sys.executable).parent / "tabpar"  # the console script of this environment
-    launcher = [str(script)] if script.exists() else [sys.executable, "-m", "harness.cli"]
+    launcher = [str(script)] if script.exists() else [sys.executable, "-m", "tabpar.cli.main"]
     command = launcher + ["calibrate", str(data), "--target", "target",
                "--date", "opened", "--score", score, "--seeds", "1", "--out", str(out), "--json"]
     env = dict(os.environ, TABPAR_CACHE=str(work / "cache"))  # a cold cache, as a first run

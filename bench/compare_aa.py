@@ -21,7 +21,7 @@ def main():
     parser.add_argument("--seeds", type=int, default=3)
     parser.add_argument("--models", default="rf")
     args = parser.parse_args()
-    from harness.compare import compare
+    from tabpar.evaluation.comparison import compare
 
     root = Path(tempfile.mkdtemp(prefix="tabpar-bench-aa-"))
     regressions, worse, calls, uncorrected = 0, 0, 0, 0

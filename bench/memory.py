@@ -20,8 +20,8 @@ PREPARE = """
 import os, tempfile
 HWM
 os.environ["TABPAR_CACHE"] = tempfile.mkdtemp()
-from harness.runner import prepare_task
-from harness.suite import load_suite
+from tabpar.execution.runner import prepare_task
+from tabpar.data.suites import load_suite
 prepare_task(load_suite("default").task("flights"))
 print(_hwm())
 """
@@ -29,14 +29,14 @@ RUN = """
 import os, tempfile
 HWM
 os.environ["TABPAR_CACHE"] = tempfile.mkdtemp()
-from harness.runner import run_suite
+from tabpar.execution.runner import run_suite
 run_suite("default", tasks=["flights"], models=["naive", "lgbm"], seeds=1,
           out=tempfile.mkdtemp(), workers=1)
 print(_hwm())
 """
 BASE = """
 HWM
-import harness.runner, harness.sources, lightgbm, sklearn.ensemble
+import tabpar.execution.runner, tabpar.data.sources, lightgbm, sklearn.ensemble
 print(_hwm())
 """
 
@@ -56,8 +56,8 @@ def _peak(code: str) -> int:
 
 
 def main():
-    from harness.sources import load_task
-    from harness.suite import load_suite
+    from tabpar.data.sources import load_task
+    from tabpar.data.suites import load_suite
 
     base = _peak(BASE)
     prepare = _peak(PREPARE)

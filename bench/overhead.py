@@ -29,9 +29,9 @@ def main():
     os.environ["TABPAR_CACHE"] = tempfile.mkdtemp(prefix="tabpar-bench-cache-")
     from threadpoolctl import threadpool_limits
 
-    from harness.runner import available_cores, load_arrays, prepare_task, run_suite
-    from harness.suite import load_suite
-    from harness.zoo import MODELS, build_model
+    from tabpar.execution.runner import available_cores, load_arrays, prepare_task, run_suite
+    from tabpar.data.suites import load_suite
+    from tabpar.models.zoo import MODELS, build_model
 
     out = Path(tempfile.mkdtemp(prefix="tabpar-bench-run-"))
     start = time.perf_counter()

@@ -23,8 +23,8 @@ def main():
     parser = argparse.ArgumentParser()
     parser.add_argument("--seeds", type=int, default=3)
     args = parser.parse_args()
-    from harness.runner import available_cores, prepare_task, run_suite
-    from harness.suite import load_suite
+    from tabpar.execution.runner import available_cores, prepare_task, run_suite
+    from tabpar.data.suites import load_suite
 
     for task in load_suite("quick").tasks:
         prepare_task(task)  # warm the cache so both runs do the same work

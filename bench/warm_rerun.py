@@ -17,7 +17,7 @@ from _common import machine  # noqa: E402
 
 def main():
     out = Path(tempfile.mkdtemp(prefix="tabpar-bench-warm-")) / "run"
-    command = [sys.executable, "-m", "harness.cli", "run", "--suite", "quick", "--seeds", "1",
+    command = [sys.executable, "-m", "tabpar.cli.main", "run", "--suite", "quick", "--seeds", "1",
                "--out", str(out), "--quiet"]
     start = time.perf_counter()
     subprocess.run(command, check=True)

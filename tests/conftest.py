@@ -13,9 +13,9 @@ from pathlib import Path
 
 import pytest
 
-import harness
-from harness.sources import load_source, load_task
-from harness.suite import load_suite
+import tabpar
+from tabpar.data.sources import load_source, load_task
+from tabpar.data.suites import load_suite
 
 
 @pytest.fixture(scope="session", autouse=True)
@@ -32,7 +32,7 @@ def tabpar_cache(tmp_path_factory):
 def quick_run(tabpar_cache, tmp_path_factory):
     """The quick suite, run ONCE per session: 10 tasks x 7 models x 2 seeds."""
     out = tmp_path_factory.mktemp("quick-run") / "out"
-    result = harness.run_suite("quick", seeds=2, out=out, workers=2)
+    result = tabpar.run_suite("quick", seeds=2, out=out, workers=2)
     return result
 
 

@@ -11,8 +11,8 @@ must give:
 - no file or folder created or changed: every file under the case's folder (inputs, outputs,
   leaderboard store, working folder) is compared byte for byte before and after.
 
-Most cases call ``harness.cli.main`` in-process; the ``via="subprocess"`` ones run
-``python -m harness.cli`` to prove no traceback reaches a real user. A case marked ``bug`` is a
+Most cases call ``tabpar.cli.main.main`` in-process; the ``via="subprocess"`` ones run
+``python -m tabpar.cli.main`` to prove no traceback reaches a real user. A case marked ``bug`` is a
 known defect of harness/ (strict xfail: it must keep failing until fixed).
 
 Every data file here is a SYNTHETIC stand-in generated below (columns x1, x2, when, y, cls);
@@ -34,9 +34,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import harness
-from harness.cli import main
-from harness.split import MIN_HOLDOUT_ROWS
+import tabpar
+from tabpar.cli.main import main
+from tabpar.data.split import MIN_HOLDOUT_ROWS
 
 N_ROWS = 120
 
@@ -702,7 +702,7 @@ def _(c):
 @case("leaderboard-import-name-taken", ["'board'", "--replace"])
 def _(c):
     c.file("first.csv", ENTRIES)
-    from harness.leaderboard import import_leaderboard
+    from tabpar.leaderboards.store import import_leaderboard
 
     import_leaderboard(c.tmp / "first.csv", task="ames", score_column="rmsle", name="board",
                        store=c.tmp / "store")
@@ -764,7 +764,7 @@ def kit_source(tmp_path_factory):
     lines = ["[suite]", 'name = "synthetic"', "", "[[task]]"]
     lines += [f"{k} = {v}" for k, v in DEFAULT_TASK.items()]
     (root / "s.toml").write_text("\n".join(lines) + "\n")
-    harness.run_suite(root / "s.toml", models=["naive", "lgbm"], seeds=1, out=root / "ref",
+    tabpar.run_suite(root / "s.toml", models=["naive", "lgbm"], seeds=1, out=root / "ref",
                       workers=1)
     return root
 
@@ -794,7 +794,7 @@ def test_bad_input_gets_one_clear_sentence(case, tmp_path, kit_source, capsys, m
     before = snapshot(work)
 
     if case.via == "subprocess":
-        proc = subprocess.run([sys.executable, "-m", "harness.cli", *argv], cwd=work,
+        proc = subprocess.run([sys.executable, "-m", "tabpar.cli.main", *argv], cwd=work,
                               capture_output=True, text=True, env=dict(os.environ),
                               timeout=300)
         code, out, err = proc.returncode, proc.stdout, proc.stderr

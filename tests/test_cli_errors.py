@@ -10,7 +10,7 @@ import sys
 
 import pytest
 
-from harness.cli import main
+from tabpar.cli.main import main
 
 DATA = "size,rooms,price\n50,2,100\n70,3,150\n90,4,210\n"  # synthetic
 
@@ -61,7 +61,7 @@ def test_user_mistake_gives_one_line_and_exit_code_2(case, args, fields, named, 
 
 def test_user_mistake_through_the_console_script_has_no_traceback(tmp_path):
     proc = subprocess.run(
-        [sys.executable, "-m", "harness.cli", "run", "--suite", "quick", "--models",
+        [sys.executable, "-m", "tabpar.cli.main", "run", "--suite", "quick", "--models",
          "no_such_model", "--out", str(tmp_path / "out")],
         capture_output=True, text=True, cwd=tmp_path, env=dict(os.environ), timeout=300)
     assert proc.returncode == 2

@@ -7,10 +7,10 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from harness.cli import main
-from harness.compare import _signed_rank_p, _task_delta, compare, holm
-from harness.metrics import METRICS
-from harness.testing import assert_no_regression
+from tabpar.cli.main import main
+from tabpar.evaluation.comparison import _signed_rank_p, _task_delta, compare, holm
+from tabpar.common.metrics import METRICS
+from tabpar.testing import assert_no_regression
 
 CANDIDATES = Path(__file__).parent / "candidates"
 

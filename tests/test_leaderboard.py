@@ -14,11 +14,11 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from harness.cli import main
-from harness.errors import UserError
-from harness.leaderboard import (import_leaderboard, list_leaderboards, load_leaderboard,
+from tabpar.cli.main import main
+from tabpar.common.errors import UserError
+from tabpar.leaderboards.store import (import_leaderboard, list_leaderboards, load_leaderboard,
                                  sanitise_name)
-from harness.placement import LEADERBOARD_KEYS, place, place_on_leaderboard
+from tabpar.evaluation.placement import LEADERBOARD_KEYS, place, place_on_leaderboard
 
 # synthetic, hand-checkable entries: a tie at 0.20
 ENTRIES = [0.30, 0.10, 0.20, 0.20]
@@ -280,7 +280,7 @@ def test_place_cli_json_has_the_leaderboard_keys(ames_board, capsys):
 
 
 def test_place_text_and_plot_show_both(ames_board, tmp_path):
-    from harness.plots import placement_plot
+    from tabpar.report.plots import placement_plot
 
     placement = place("ames", score=0.15, suite="quick", reference="quick",
                       leaderboard=ames_board)

@@ -1,4 +1,4 @@
-"""harness.metrics against scikit-learn's metrics, on seeded synthetic data.
+"""tabpar.common.metrics against scikit-learn's metrics, on seeded synthetic data.
 
 All targets and predictions here are synthetic stand-ins drawn from a seeded generator.
 """
@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 from sklearn import metrics as skm
 
-from harness.errors import UserError
-from harness.metrics import METRICS, get_metric
+from tabpar.common.errors import UserError
+from tabpar.common.metrics import METRICS, get_metric
 
 N = 400
 

@@ -12,13 +12,13 @@ import pytest
 from scipy import stats
 from sklearn.ensemble import HistGradientBoostingRegressor
 
-from harness.cli import main
-from harness.export import export_task
-from harness.metrics import METRICS
-from harness.placement import (bootstrap_scores, competition_rank, half_width, percentile_of,
+from tabpar.cli.main import main
+from tabpar.data.export import export_task
+from tabpar.common.metrics import METRICS
+from tabpar.evaluation.placement import (bootstrap_scores, competition_rank, half_width, percentile_of,
                                place)
-from harness.prep import BaselinePrep
-from harness.suite import load_suite
+from tabpar.procedure.baseline import BaselinePrep
+from tabpar.data.suites import load_suite
 
 
 @pytest.mark.parametrize("metric_name", ["rmse", "roc_auc"])
@@ -193,7 +193,7 @@ def test_changed_data_is_refused_unless_forced(tmp_path, capsys):
     reference = tmp_path / "ref"
     import shutil
 
-    from harness.reference import published_root
+    from tabpar.evaluation.reference import published_root
 
     shutil.copytree(published_root() / "reference" / "quick", reference)
     meta = json.loads((reference / "run.json").read_text())
@@ -209,7 +209,7 @@ def test_placement_plot_has_labelled_elements(tmp_path):
     import matplotlib
 
     matplotlib.use("Agg")
-    from harness import plots
+    from tabpar.report import plots
 
     result = place("diamonds", score=0.2, suite="quick", reference="quick")
     captured = {}
@@ -235,8 +235,8 @@ def test_placement_plot_has_labelled_elements(tmp_path):
 
 
 def test_suite_plot_svg_and_png(tmp_path):
-    from harness.plots import suite_plot
-    from harness.reference import Reference
+    from tabpar.report.plots import suite_plot
+    from tabpar.evaluation.reference import Reference
 
     ref = Reference("quick")
     for name in ("suite.png", "suite.svg"):
@@ -245,9 +245,9 @@ def test_suite_plot_svg_and_png(tmp_path):
 
 
 def test_suite_plot_refuses_an_overlay_of_another_suite(tmp_path):
-    from harness.errors import UserError
-    from harness.plots import suite_plot
-    from harness.reference import Reference
+    from tabpar.common.errors import UserError
+    from tabpar.report.plots import suite_plot
+    from tabpar.evaluation.reference import Reference
 
     with pytest.raises(UserError, match="other holdouts"):
         suite_plot(Reference("default"), tmp_path / "s.png", overlay=Reference("quick"))

@@ -1,4 +1,4 @@
-"""The baseline procedure (harness.prep.BaselinePrep) against outside references.
+"""The baseline procedure (tabpar.procedure.baseline.BaselinePrep) against outside references.
 
 References: ISO 8601 week numbering (through Python's ``datetime.date.isocalendar``), pandas'
 ``.dt`` accessors, Python's ``zoneinfo``, ``sklearn.impute.SimpleImputer`` and
@@ -22,7 +22,7 @@ from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import OrdinalEncoder
 from sklearn.utils.validation import check_is_fitted
 
-from harness.prep import CALENDAR_FIELDS, MISSING_SUFFIX, BaselinePrep, calendar_fields
+from tabpar.procedure.baseline import CALENDAR_FIELDS, MISSING_SUFFIX, BaselinePrep, calendar_fields
 
 # The procedure's field names, by the pandas accessor they mirror (older spellings accepted).
 _SPELLINGS = {"day_of_week": ("day_of_week", "dayofweek"),
@@ -464,8 +464,8 @@ def test_prepared_task_learns_only_from_training_rows(write_suite, tmp_path):
                           "target": target})
 
     def prepared(data: pd.DataFrame, tag: str):
-        from harness.runner import load_arrays, prepare_task
-        from harness.suite import load_suite
+        from tabpar.execution.runner import load_arrays, prepare_task
+        from tabpar.data.suites import load_suite
 
         data.to_csv(tmp_path / f"{tag}.csv", index=False)  # synthetic stand-in data
         path = write_suite(f"""

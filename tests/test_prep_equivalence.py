@@ -5,7 +5,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from harness.prep import BaselinePrep, sklearn_equivalent
+from tabpar.procedure.baseline import BaselinePrep, sklearn_equivalent
 
 
 def _frames(kind):

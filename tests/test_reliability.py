@@ -4,14 +4,14 @@
 - SIGINT / SIGTERM / SIGKILL of a real ``tabpar run`` process: every finished job is kept as a
   complete line, no worker process outlives it, and a rerun resumes without repeating jobs.
 - A second ``tabpar run`` on a folder in use is refused (a lock).
-- Writes are atomic (``harness.store.atomic_write_bytes``; leaderboards; the prepared cache).
+- Writes are atomic (``tabpar.execution.store.atomic_write_bytes``; leaderboards; the prepared cache).
 - The same command twice gives identical rows and predictions; every row carries the data
   fingerprint and the library versions; ``place`` / ``compare`` refuse changed data.
 - No user data file is unpickled; suite paths resolve against the suite file; names from suite
   files or the command line never escape the folder they belong in.
 
 Models that fail on purpose are test-only stand-ins (``STAND_IN_MODELS`` below), added to
-``harness.zoo.MODELS`` in this process with monkeypatch and, for worker processes and ``tabpar``
+``tabpar.models.zoo.MODELS`` in this process with monkeypatch and, for worker processes and ``tabpar``
 subprocesses, by a ``sitecustomize`` module on ``PYTHONPATH`` (active only when
 ``TABPAR_TEST_MODELS=1``). Every data file is a SYNTHETIC stand-in generated here.
 """
@@ -38,12 +38,12 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import harness
-import harness.store
-import harness.zoo
-from harness.cli import main
-from harness.errors import UserError
-from harness.store import atomic_write_bytes, read_job_rows
+import tabpar
+import tabpar.execution.store
+import tabpar.models.zoo
+from tabpar.cli.main import main
+from tabpar.common.errors import UserError
+from tabpar.execution.store import atomic_write_bytes, read_job_rows
 
 pytestmark = pytest.mark.skipif(not sys.platform.startswith("linux"),
                                 reason="signals, /proc and PR_SET_PDEATHSIG are Linux's")
@@ -107,7 +107,7 @@ class KillsItsProcess(_Floor):
 def specs():
     import dataclasses
 
-    from harness.zoo import ModelSpec
+    from tabpar.models.zoo import ModelSpec
 
     def builder(cls):
         return lambda task_type, seed, threads: cls(task_type)
@@ -138,10 +138,10 @@ SITECUSTOMIZE = '''
 import os
 
 if os.environ.get("TABPAR_TEST_MODELS") == "1":
-    import harness.zoo
+    import tabpar.models.zoo
     import tabpar_stand_in_models
 
-    tabpar_stand_in_models.register(harness.zoo.MODELS)
+    tabpar_stand_in_models.register(tabpar.models.zoo.MODELS)
 '''
 
 
@@ -167,7 +167,7 @@ def register_in_process(monkeypatch, folder: Path) -> None:
     import tabpar_stand_in_models
 
     for spec in tabpar_stand_in_models.specs():
-        monkeypatch.setitem(harness.zoo.MODELS, spec.name, spec)
+        monkeypatch.setitem(tabpar.models.zoo.MODELS, spec.name, spec)
 
 
 def synthetic_frame(n: int = 120, seed: int = 0) -> pd.DataFrame:
@@ -260,7 +260,7 @@ def tabpar_process(args, env, cwd: Path, logs: Path):
     with open(logs / "stdout.txt", "w") as out, open(logs / "stderr.txt", "w") as err:
         # SIGINT as an interactive shell leaves it: a test run started in the background
         # inherits it ignored, and Python then never turns Ctrl-C into KeyboardInterrupt
-        proc = subprocess.Popen([sys.executable, "-m", "harness.cli", *args], cwd=cwd, env=env,
+        proc = subprocess.Popen([sys.executable, "-m", "tabpar.cli.main", *args], cwd=cwd, env=env,
                                 stdout=out, stderr=err, start_new_session=True,
                                 preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
         try:
@@ -425,7 +425,7 @@ def test_sigkill_leaves_a_readable_file_no_orphans_and_a_rerun_resumes(tmp_path,
         handle.write(b'{"task": "t1", "model": "sleepy_last", "seed": 0, "status": "ok", "sc')
     assert read_job_rows(out / "jobs.jsonl") == finished
 
-    rerun = subprocess.run([sys.executable, "-m", "harness.cli", *args], cwd=tmp_path,
+    rerun = subprocess.run([sys.executable, "-m", "tabpar.cli.main", *args], cwd=tmp_path,
                            env=stand_in_env(stand_ins, sleep=0), capture_output=True,
                            text=True, timeout=DEADLINE)
     assert rerun.returncode == 0, rerun.stderr
@@ -444,7 +444,7 @@ def test_a_second_run_on_a_folder_in_use_is_refused(tmp_path, stand_ins, capsys)
         wait_until(lambda: rows_at_least(out / "jobs.jsonl", 2), "the naive jobs", proc, logs)
         before = {p: p.read_bytes() if p.is_file() else "<dir>"  # the first is asleep
                   for p in sorted(out.rglob("*"))}
-        refused = subprocess.run([sys.executable, "-m", "harness.cli", *second], cwd=tmp_path,
+        refused = subprocess.run([sys.executable, "-m", "tabpar.cli.main", *second], cwd=tmp_path,
                                  capture_output=True, text=True, timeout=DEADLINE)
         assert refused.returncode == 2, refused.stderr
         assert refused.stderr.strip().splitlines() == [
@@ -503,15 +503,15 @@ def test_atomic_write_keeps_the_old_file_when_the_write_fails(failure, tmp_path,
     if failure == "rename":
         def replace(src, dst):
             raise OSError(errno.EXDEV, "Invalid cross-device link")
-        monkeypatch.setattr(harness.store.os, "replace", replace)
+        monkeypatch.setattr(tabpar.execution.store.os, "replace", replace)
     elif failure == "fsync":
         def fsync(fd):
             raise OSError(errno.EIO, "Input/output error")
-        monkeypatch.setattr(harness.store.os, "fsync", fsync)
+        monkeypatch.setattr(tabpar.execution.store.os, "fsync", fsync)
     else:
         error = (OSError(errno.ENOSPC, "No space left on device") if "disk" in failure
                  else KeyboardInterrupt())
-        monkeypatch.setattr(harness.store.os, "fdopen",
+        monkeypatch.setattr(tabpar.execution.store.os, "fdopen",
                             lambda fd, mode: _HalfWriter(real_fdopen(fd, mode), error))
     with pytest.raises((OSError, KeyboardInterrupt)):
         atomic_write_bytes(path, b'{"new": "a much longer text that is cut in half"}\n' * 100)
@@ -523,7 +523,7 @@ def test_atomic_write_keeps_the_old_file_when_the_write_fails(failure, tmp_path,
 def test_atomic_write_of_a_new_file_leaves_nothing_when_it_fails(tmp_path, monkeypatch):
     def replace(src, dst):
         raise OSError(errno.ENOSPC, "No space left on device")
-    monkeypatch.setattr(harness.store.os, "replace", replace)
+    monkeypatch.setattr(tabpar.execution.store.os, "replace", replace)
     with pytest.raises(OSError):
         atomic_write_bytes(tmp_path / "new.parquet", b"data")
     monkeypatch.undo()
@@ -542,7 +542,7 @@ def test_atomic_write_gives_the_permissions_of_a_plain_write(tmp_path):
 
 
 def test_replacing_a_leaderboard_that_fails_midway_keeps_the_old_one(tmp_path, monkeypatch):
-    from harness.leaderboard import import_leaderboard, load_leaderboard
+    from tabpar.leaderboards.store import import_leaderboard, load_leaderboard
 
     store = tmp_path / "store"
     (tmp_path / "old.csv").write_text("team,rmsle\nteam_a,0.13\nteam_b,0.15\n")  # synthetic
@@ -557,7 +557,7 @@ def test_replacing_a_leaderboard_that_fails_midway_keeps_the_old_one(tmp_path, m
             raise OSError(errno.ENOSPC, "No space left on device")
         return real_replace(src, dst)
 
-    monkeypatch.setattr(harness.store.os, "replace", replace)
+    monkeypatch.setattr(tabpar.execution.store.os, "replace", replace)
     with pytest.raises(UserError, match="Cannot write to the leaderboard store"):
         import_leaderboard(tmp_path / "new.csv", task="ames", score_column="rmsle",
                            name="board", store=store, replace=True)
@@ -567,9 +567,9 @@ def test_replacing_a_leaderboard_that_fails_midway_keeps_the_old_one(tmp_path, m
 
 
 def test_an_interrupted_cache_write_is_never_used(tmp_path, monkeypatch):
-    from harness.runner import cache_info, load_arrays, prepare_task
+    from tabpar.execution.runner import cache_info, load_arrays, prepare_task
 
-    task = harness.load_suite(write_suite(tmp_path / "suite", tasks=("t1",))).task("t1")
+    task = tabpar.load_suite(write_suite(tmp_path / "suite", tasks=("t1",))).task("t1")
     real_save, saved = np.save, []
 
     def save(path, array, *a, **k):
@@ -601,7 +601,7 @@ def two_quick_runs(tmp_path_factory):
         out = root / f"run{i}"
         env = dict(os.environ, TABPAR_CACHE=str(root / f"cache{i}"))
         proc = subprocess.run(
-            [sys.executable, "-m", "harness.cli", "run", "--suite", "quick", "--tasks",
+            [sys.executable, "-m", "tabpar.cli.main", "run", "--suite", "quick", "--tasks",
              ",".join(QUICK_TASKS), "--models", ",".join(SEEDED_ZOO), "--seeds", "1",
              "--workers", "2", "--out", str(out), "--quiet"],
             cwd=root, env=env, capture_output=True, text=True, timeout=600)
@@ -662,7 +662,7 @@ def synthetic_reference(tmp_path):
     """A results folder of a SYNTHETIC one-task suite (naive + lgbm, 1 seed) to place against."""
     suite = write_suite(tmp_path / "suite", tasks=("t1",))
     ref = tmp_path / "ref"
-    harness.run_suite(suite, models=["naive", "lgbm"], seeds=1, out=ref, workers=1)
+    tabpar.run_suite(suite, models=["naive", "lgbm"], seeds=1, out=ref, workers=1)
     return suite, ref
 
 
@@ -785,7 +785,7 @@ def test_task_names_that_could_leave_a_folder_are_refused(name, tmp_path):
         f'[suite]\nname = "synthetic"\n\n[[task]]\nname = {json.dumps(name)}\n'
         f'source = "csv:d.csv"\ntarget = "y"\ntype = "regression"\n')
     with pytest.raises(UserError, match="Task name"):
-        harness.load_suite(tmp_path / "s.toml")
+        tabpar.load_suite(tmp_path / "s.toml")
 
 
 def test_a_suite_name_cannot_put_results_outside_runs(tmp_path, monkeypatch, capsys):

@@ -15,11 +15,11 @@ import pyarrow.parquet
 import pytest
 from sklearn import metrics as skm
 
-import harness
-from harness.metrics import get_metric
-from harness.runner import load_arrays, prepare_task
-from harness.store import JOBS_FILE, ResultsStore, read_job_rows, read_predictions
-from harness.zoo import DEFAULT_ENSEMBLES, MODELS
+import tabpar
+from tabpar.common.metrics import get_metric
+from tabpar.execution.runner import load_arrays, prepare_task
+from tabpar.execution.store import JOBS_FILE, ResultsStore, read_job_rows, read_predictions
+from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
 
 SEEDS = 2
 
@@ -33,7 +33,7 @@ def test_one_ok_row_per_job(quick_run, rows, suites):
     n_tasks = len(suites["quick"].tasks)
     assert quick_run.jobs == n_tasks * len(MODELS) * SEEDS
     assert quick_run.ok == quick_run.jobs and quick_run.failed == 0 and quick_run.reused == 0
-    frame = harness.load_results(quick_run.out)
+    frame = tabpar.load_results(quick_run.out)
     assert len(frame) == quick_run.jobs
     assert (frame["status"] == "ok").all(), frame.loc[frame["status"] != "ok", "error"].tolist()
     assert not frame.duplicated(["task", "model", "seed"]).any()
@@ -44,7 +44,7 @@ def test_one_ok_row_per_job(quick_run, rows, suites):
 
 
 def test_every_default_ensemble_beats_naive_on_every_task(quick_run):
-    frame = harness.load_results(quick_run.out)
+    frame = tabpar.load_results(quick_run.out)
     means = frame.groupby(["task", "model"])["score"].mean()
     failures = []
     for task, group in frame.groupby("task"):
@@ -119,7 +119,7 @@ def test_stored_scores_match_sklearn_on_stored_predictions(quick_run, rows, suit
 
 def test_rerun_with_same_out_reuses_every_job(quick_run):
     before = (quick_run.out / JOBS_FILE).read_bytes()
-    again = harness.run_suite("quick", seeds=SEEDS, out=quick_run.out, workers=2)
+    again = tabpar.run_suite("quick", seeds=SEEDS, out=quick_run.out, workers=2)
     assert again.reused == again.jobs == quick_run.jobs
     assert again.ok == quick_run.jobs and again.failed == 0
     assert (quick_run.out / JOBS_FILE).read_bytes() == before  # no new lines appended
@@ -154,7 +154,7 @@ def test_torn_last_line_is_ignored_and_next_append_starts_a_new_line(quick_run, 
 def test_console_script_json_output(quick_run, tmp_path):
     out = tmp_path / "cli-run"
     proc = subprocess.run(
-        [sys.executable, "-m", "harness.cli", "run", "--suite", "quick", "--tasks",
+        [sys.executable, "-m", "tabpar.cli.main", "run", "--suite", "quick", "--tasks",
          "diamonds,attrition", "--models", "naive,lgbm", "--seeds", "1", "--out", str(out),
          "--json"],
         capture_output=True, text=True, cwd=tmp_path, env=dict(os.environ), timeout=600)

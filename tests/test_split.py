@@ -9,11 +9,11 @@ import pandas as pd
 import pytest
 from sklearn.model_selection import train_test_split
 
-from harness.errors import UserError
-from harness.metrics import DEFAULT_METRIC
-from harness.sources import LoadedTask
-from harness.split import MIN_HOLDOUT_ROWS, encode_target, split_rows
-from harness.suite import Holdout, Task, load_suite
+from tabpar.common.errors import UserError
+from tabpar.common.metrics import DEFAULT_METRIC
+from tabpar.data.sources import LoadedTask
+from tabpar.data.split import MIN_HOLDOUT_ROWS, encode_target, split_rows
+from tabpar.data.suites import Holdout, Task, load_suite
 
 TIME_TASKS = [t.name for t in load_suite("quick").tasks if t.holdout.policy == "time"]
 

@@ -6,8 +6,8 @@ from __future__ import annotations
 
 import pytest
 
-from harness.errors import UserError
-from harness.suite import load_suite
+from tabpar.common.errors import UserError
+from tabpar.data.suites import load_suite
 
 VALID = """
 [suite]

@@ -2,7 +2,7 @@
 import numpy as np
 from sklearn.base import BaseEstimator, TransformerMixin
 
-from harness.prep import BaselinePrep
+from tabpar.procedure.baseline import BaselinePrep
 
 
 class CodesPerCall(TransformerMixin, BaseEstimator):

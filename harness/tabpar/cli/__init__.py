@@ -1,0 +1,1 @@
+"""Stage 9, command line: one module per command, a thin layer over the Python API."""

@@ -1,0 +1,91 @@
+"""Export a task's exact split so anyone can fit their own pipeline on the identical rows.
+
+Writes ``train.csv`` (features + target), ``holdout.csv`` (features only), both with a
+``row_id`` column (the row's 0-based position in the source as read, the id the predictions file
+and the reference use), and ``task.json`` describing the target, metric, direction and how to submit.
+"""
+from __future__ import annotations
+
+import io
+import json
+from pathlib import Path
+
+import pandas as pd
+
+from tabpar.common.errors import UserError
+from tabpar.data.sources import LoadedTask, load_task
+from tabpar.data.split import Split, encode_target, split_rows
+from tabpar.common.files import atomic_write_bytes, atomic_write_text
+from tabpar.data.suites import Task
+
+FORMATS = ("csv", "parquet")
+
+
+def _encode(frame: pd.DataFrame, fmt: str) -> bytes:
+    if fmt == "parquet":
+        return frame.to_parquet(index=False)
+    buffer = io.StringIO()
+    frame.to_csv(buffer, index=False, date_format="%Y-%m-%dT%H:%M:%S%z")
+    return buffer.getvalue().encode("utf-8")
+
+
+def split_frames(loaded: LoadedTask, split: Split) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """(train with target, holdout without target), each led by ``row_id`` (the row's
+    0-based position in the source as read)."""
+    frame = loaded.frame.copy()
+    frame.insert(0, "row_id", loaded.row_ids)
+    train = frame.iloc[split.train].reset_index(drop=True)
+    holdout = frame.iloc[split.holdout].drop(columns=[loaded.task.target]).reset_index(drop=True)
+    return train, holdout
+
+
+def write_split(out: Path, loaded: LoadedTask, split: Split, fmt: str, description: dict) -> dict:
+    """Write train/holdout files and task.json into ``out``; returns the task.json content."""
+    if fmt not in FORMATS:
+        raise UserError(f"Unknown export format '{fmt}'; use csv or parquet.")
+    out = Path(out)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise UserError(f"Cannot create the export folder {out} ({exc.strerror}); choose "
+                        f"another.") from None
+    train, holdout = split_frames(loaded, split)
+    atomic_write_bytes(out / f"train.{fmt}", _encode(train, fmt))
+    atomic_write_bytes(out / f"holdout.{fmt}", _encode(holdout, fmt))
+    atomic_write_text(out / "task.json", json.dumps(description, indent=2, default=str))
+    return description
+
+
+def describe(task: Task, loaded: LoadedTask, split: Split, fmt: str) -> dict:
+    positive = None
+    if task.type == "binary":
+        positive = (f"1 ({task.derive_target.label or task.derive_target.column + ' >= ' + str(task.derive_target.at_least)})"
+                    if task.derive_target else task.positive)
+    submit = {
+        "regression": "one row per holdout row_id with 'prediction' = the predicted target in "
+                      "its original units",
+        "binary": f"one row per holdout row_id with 'prediction' = the probability that "
+                  f"'{task.target}' is the positive class {positive!r}",
+        "multiclass": "place multiclass scores with --score",
+    }[task.type]
+    return {
+        "task": task.name, "source": task.source, "target": task.target, "type": task.type,
+        "metric": task.metric, "lower_is_better": task.lower_is_better,
+        "positive_class": positive, "fingerprint": loaded.fingerprint,
+        "holdout": split.description, "n_train": len(split.train),
+        "n_holdout": len(split.holdout), "notes": loaded.notes + split.notes,
+        "files": {"train": f"train.{fmt}", "holdout": f"holdout.{fmt}"},
+        "how_to_submit": (f"Write a CSV or Parquet file with columns row_id and prediction: "
+                          f"{submit}. Then: tabpar place {task.name} --predictions FILE"),
+        "target_transform": ("the metric is RMSLE: train on log1p(target) and submit "
+                             "expm1(prediction)") if task.log_target else None,
+    }
+
+
+def export_task(task: Task, out: str | Path, fmt: str = "csv") -> dict:
+    """Export ``task``'s split to ``out``; returns the task.json description."""
+    if fmt not in FORMATS:
+        raise UserError(f"Unknown export format '{fmt}'; use csv or parquet.")
+    loaded = load_task(task)
+    split = split_rows(loaded, encode_target(loaded))
+    return write_split(Path(out), loaded, split, fmt, describe(task, loaded, split, fmt))

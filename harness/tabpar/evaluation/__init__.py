@@ -1,0 +1,1 @@
+"""Stage 5, evaluation: shared statistics, published references, placement of a score, comparison of procedures."""

@@ -1,0 +1,401 @@
+"""Regression-test a preprocessing change across a suite (``tabpar compare``).
+
+Per task, the candidate and the baseline procedure are run with the same models and seeds (other
+seeds when both are the same procedure: an A/A run, seed offset ``AA_SEED_OFFSET``), on the same
+split. The task's **delta** is the mean over models and seed pairs of the candidate's gain over
+the baseline, divided by the baseline's gain over the naive floor: a direction-normalised,
+unit-free number (positive = better; -0.1 = the candidate loses a tenth of what the baseline
+gains over naive). Its 95% band adds two variances: the paired bootstrap over holdout rows (both
+predictions rescored on the same resampled rows) and the spread of the per-seed deltas. Calls use
+Holm-corrected p-values over the tasks compared (family-wise 5%), so a ten-task suite does not
+raise a false alarm in one A/A run in five. The aggregate signed-rank test ranks the tasks'
+standardised deltas (delta / its standard error), so the noisiest tasks do not dominate it.
+"""
+from __future__ import annotations
+
+import json
+import shutil
+from dataclasses import asdict, dataclass, field
+from datetime import datetime
+from pathlib import Path
+
+import numpy as np
+from scipy import stats
+
+from tabpar.common.errors import UserError
+from tabpar.common.metrics import get_metric
+from tabpar.procedure.variants import builtin, resolve_procedure
+from tabpar.evaluation.reference import check_format, published_root
+from tabpar.execution.runner import (library_versions, load_arrays, preparation_code_digest, prepare_task,
+                     run_suite)
+from tabpar.execution.store import (RUN_FILE, ResultsStore, align_to, atomic_write_text, load_results,
+                    read_predictions)
+from tabpar.data.suites import Task, load_suite
+from tabpar.models.zoo import check_models
+
+AA_SEED_OFFSET = 1000
+DEFAULT_MODELS = ("rf", "lgbm")
+ALPHA = 0.05
+N_BOOTSTRAP = 1000
+N_BOOTSTRAP_LARGE = 250  # for holdouts over LARGE_HOLDOUT rows, to keep compare fast
+LARGE_HOLDOUT = 20_000
+
+
+@dataclass
+class TaskComparison:
+    task: str
+    delta: float | None  # candidate's gain over baseline / baseline's gain over naive
+    low: float | None  # 95% band
+    high: float | None
+    p_value: float | None  # two-sided, before correction
+    p_holm: float | None
+    call: str  # better | same | worse | error | n/a
+    metric: str = ""
+    baseline_score: float | None = None  # mean over models and seeds, metric units
+    candidate_score: float | None = None
+    leakage: str | None = None
+    note: str = ""
+    se: float | None = None  # standard error of delta (bootstrap and seed parts combined)
+
+
+@dataclass
+class Comparison:
+    candidate: str
+    baseline: str
+    suite: str
+    aa: bool
+    models: list
+    seeds: int
+    tolerance: float
+    tasks: list
+    wins: int
+    ties: int
+    losses: int
+    median_delta: float | None
+    p_value: float | None  # Wilcoxon signed-rank over task deltas
+    regression: bool
+    reasons: list = field(default_factory=list)
+    leakage: list = field(default_factory=list)
+    out: str = ""
+    reused_baseline_jobs: int = 0
+
+    @property
+    def passed(self) -> bool:
+        return not self.regression and not self.leakage
+
+    def to_dict(self) -> dict:
+        d = asdict(self)
+        d["passed"] = self.passed
+        return d
+
+    def __str__(self) -> str:
+        head = (f"compare {self.candidate} against {self.baseline} on suite '{self.suite}'"
+                f"{' (A/A: same procedure, other seeds)' if self.aa else ''}; models "
+                f"{', '.join(self.models)} × {self.seeds} seeds")
+        lines = [head, f"  {'task':<14}{'delta':>9}  {'95% band':<21}{'p (Holm)':>10}  call"]
+        for t in self.tasks:
+            if t.delta is None:
+                lines.append(f"  {t.task:<14}{'-':>9}  {'':<21}{'':>10}  {t.call}: {t.note}")
+                continue
+            band = f"[{t.low:+.3f}, {t.high:+.3f}]"
+            flag = "  LEAKAGE" if t.leakage else ""
+            lines.append(f"  {t.task:<14}{t.delta:>+9.3f}  {band:<21}{t.p_holm:>10.3f}  "
+                         f"{t.call}{flag}")
+        med = "n/a" if self.median_delta is None else f"{self.median_delta:+.3f}"
+        p = "n/a" if self.p_value is None else f"{self.p_value:.3f}"
+        lines.append(f"  wins {self.wins} · ties {self.ties} · losses {self.losses} · median "
+                     f"delta {med} · Wilcoxon p {p}")
+        lines.append("  delta: the candidate's gain over the baseline as a share of the "
+                     "baseline's gain over the naive floor (positive = better).")
+        for item in self.leakage:
+            lines.append(f"  leakage guard: {item}")
+        verdict = ("REGRESSION: " + "; ".join(self.reasons) if self.regression else
+                   "no regression beyond the noise")
+        lines.append(f"  {verdict}" + ("" if not self.leakage else
+                                       " — but the leakage guard failed (see above)"))
+        if self.out:
+            lines.append(f"  report: {self.out}/report.md, {self.out}/report.json")
+        return "\n".join(lines)
+
+    def to_markdown(self) -> str:
+        rows = ["| task | delta | 95% band | p (Holm) | call |", "|---|---|---|---|---|"]
+        for t in self.tasks:
+            if t.delta is None:
+                rows.append(f"| {t.task} | – | – | – | {t.call}: {t.note} |")
+            else:
+                rows.append(f"| {t.task} | {t.delta:+.3f} | [{t.low:+.3f}, {t.high:+.3f}] | "
+                            f"{t.p_holm:.3f} | {t.call}{' (leakage)' if t.leakage else ''} |")
+        text = str(self).splitlines()
+        return "\n".join([f"# tabpar compare: {self.candidate} vs {self.baseline}", "",
+                          text[0], ""] + rows + [""] + [line.strip() for line in text[-4:]]
+                         ) + "\n"
+
+
+def holm(p_values) -> np.ndarray:
+    """Holm's step-down adjusted p-values (family-wise error control), same order as given."""
+    p = np.asarray(p_values, float)
+    order = np.argsort(p)
+    m = len(p)
+    adjusted = np.empty(m)
+    running = 0.0
+    for rank, index in enumerate(order):
+        running = max(running, min(1.0, (m - rank) * p[index]))
+        adjusted[index] = running
+    return adjusted
+
+
+def naive_prediction(task: Task, y_train: np.ndarray, n_classes: int):
+    """The naive floor's constant prediction (mean, in log1p space for RMSLE; class prior)."""
+    if task.type == "regression":
+        return float(np.expm1(np.mean(np.log1p(y_train)))) if task.log_target \
+            else float(np.mean(y_train))
+    prior = np.bincount(y_train.astype(int), minlength=n_classes) / len(y_train)
+    return prior[1] if task.type == "binary" else prior
+
+
+def _seed_predictions(folder: Path, frame, task, model, seeds, row_id):
+    """Predictions of ``task``/``model`` for each seed, aligned to ``row_id``."""
+    out = []
+    for seed in seeds:
+        rows = frame[(frame["task"] == task) & (frame["model"] == model) &
+                     (frame["seed"] == seed) & (frame["status"] == "ok")]
+        if rows.empty or not isinstance(rows["predictions"].iloc[-1], str):
+            return None
+        aligned = align_to(*read_predictions(folder / rows["predictions"].iloc[-1]), row_id)
+        if aligned is None:
+            return None
+        out.append(aligned)
+    return out
+
+
+def _task_delta(task: Task, metric, y, naive, base_preds, cand_preds, rng, n_boot):
+    """(delta, se_boot, se_seed, seed_df, base_score, cand_score) for one task.
+
+    ``base_preds``/``cand_preds``: [model][seed] predictions. ``se_seed`` pools the seed variance
+    of both sides (each side's per-seed score, averaged over models, varies by seed), with
+    ``seed_df = 2 (K - 1)`` degrees of freedom; it is 0 for models the seed does not change.
+    """
+    base_scores = np.array([[metric(y, p) for p in seeds] for seeds in base_preds])
+    cand_scores = np.array([[metric(y, p) for p in seeds] for seeds in cand_preds])
+    naive_score = metric(y, np.broadcast_to(naive, (len(y),) + np.shape(naive)))
+    scale = float(metric.gain(base_scores.mean(), naive_score))
+    if not scale > 0:
+        return None, None, None, None, base_scores.mean(), cand_scores.mean()
+    # each side's skill-like gain over naive per seed, averaged over models
+    base_gain = (metric.gain(base_scores, naive_score) / scale).mean(axis=0)
+    cand_gain = (metric.gain(cand_scores, naive_score) / scale).mean(axis=0)
+    delta = float(cand_gain.mean() - base_gain.mean())
+    k = len(base_gain)
+    if k > 1:
+        se_seed = float(np.sqrt((np.var(base_gain, ddof=1) + np.var(cand_gain, ddof=1)) / k))
+        seed_df = 2 * (k - 1)
+    else:
+        se_seed, seed_df = 0.0, None
+    n = len(y)
+    boot = np.empty(n_boot)
+    for b in range(n_boot):
+        counts = np.bincount(rng.integers(0, n, n), minlength=n)
+        gains = [metric.gain(metric(y, c, counts), metric(y, p, counts))
+                 for cs, bs in zip(cand_preds, base_preds) for c, p in zip(cs, bs)]
+        boot[b] = np.mean(gains) / scale
+    se_boot = float(np.nanstd(boot, ddof=1))
+    return (delta, se_boot, se_seed, seed_df, float(base_scores.mean()),
+            float(cand_scores.mean()))
+
+
+def band_and_p(delta: float, se_boot: float, se_seed: float, seed_df):
+    """(half-width of the 95% band, two-sided p) of a delta with two independent noise parts.
+
+    Student's t with the seed part's degrees of freedom when seeds vary (few seeds make a poor
+    variance estimate, and the normal quantile would call noise a difference); normal otherwise.
+    """
+    se = float(np.hypot(se_boot, se_seed))
+    if se == 0:
+        return 0.0, (1.0 if delta == 0 else 0.0)
+    if se_seed > 0 and seed_df:
+        return (float(stats.t.ppf(0.975, seed_df) * se),
+                float(2 * stats.t.sf(abs(delta) / se, seed_df)))
+    return 1.959964 * se, float(2 * stats.norm.sf(abs(delta) / se))
+
+
+def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, models: list,
+                                  seeds: int) -> int:
+    """Copy matching jobs of the published reference into a new baseline folder."""
+    ref = published_root() / "reference" / suite_name
+    if not (ref / RUN_FILE).exists() or (base_out / RUN_FILE).exists():
+        return 0
+    meta = json.loads((ref / RUN_FILE).read_text())
+    rows = load_results(ref)
+    versions = library_versions()
+    current = {t.name: prepare_task(t).fingerprint for t in tasks}
+    keep = rows[(rows["status"] == "ok") & rows["task"].isin(list(current)) &
+                rows["model"].isin(models) & rows["seed"].isin(range(seeds))]
+    keep = keep[[meta["tasks"].get(t, {}).get("fingerprint") == current[t]
+                 for t in keep["task"]]]
+    keep = keep[[v == versions for v in keep["versions"]]]
+    if "code" not in keep:
+        return 0
+    keep = keep[keep["code"] == preparation_code_digest()]  # same preparing code too
+    if keep.empty:
+        return 0
+    store = ResultsStore(base_out)
+    store.open_for_writing()
+    try:
+        for row in keep.to_dict("records"):
+            row = {k: v for k, v in row.items() if not (isinstance(v, float) and np.isnan(v))}
+            target = base_out / row["predictions"]
+            target.parent.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(ref / row["predictions"], target)
+            store.append(row)
+    finally:
+        store.close()
+    return len(keep)
+
+
+def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tasks=None,
+            models=None, seeds: int = 3, tolerance: float = 0.0, out=None,
+            workers: int | None = None, progress: bool = False, n_boot: int | None = None,
+            seed: int = 0, executor: str = "local", scheduler: str | None = None,
+            aa_seed_offset: int = AA_SEED_OFFSET, force: bool = False) -> Comparison:
+    """Compare procedure ``candidate`` with ``baseline`` (a procedure SPEC or a results
+    folder) on ``suite``. Deltas are unit-free, positive = the candidate is better."""
+    if tolerance < 0:
+        raise UserError(f"--tolerance must be >= 0, not {tolerance}.")
+    suite_obj = load_suite(suite)
+    selected = suite_obj.select(tasks)
+    models = check_models(models or list(DEFAULT_MODELS))
+    models = [m for m in models if m != "naive"]  # the floor is computed directly
+    if not models:
+        raise UserError("--models needs at least one model other than naive.")
+    cand_proc = resolve_procedure(candidate)
+    out = Path(out) if out is not None else Path("runs") / (
+        f"compare-{suite_obj.name}-{datetime.now().strftime('%Y%m%d-%H%M%S')}")
+    base_dir = Path(baseline) if (Path(baseline) / RUN_FILE).exists() else None
+    if base_dir is not None:
+        base_meta = json.loads((base_dir / RUN_FILE).read_text())
+        check_format(base_meta, base_dir)
+        for task in selected:
+            then = base_meta.get("tasks", {}).get(task.name, {}).get("fingerprint")
+            now = prepare_task(task).fingerprint
+            if then is not None and then != now and not force:
+                raise UserError(f"The data of task '{task.name}' changed since the baseline "
+                                f"{base_dir} was run (fingerprint {then} then, {now} now); "
+                                f"rerun the baseline, or pass --force to compare anyway.")
+        if base_meta.get("suite") != suite_obj.name:
+            raise UserError(f"The baseline folder {base_dir} holds suite "
+                            f"'{base_meta.get('suite')}', not '{suite_obj.name}'; pass --suite "
+                            f"{base_meta.get('suite')}.")
+        base_name = f"{base_dir} ({base_meta.get('procedure', 'builtin')})"
+        aa = base_meta.get("procedure", "builtin") == cand_proc.name
+        reused = 0
+    else:
+        base_proc = resolve_procedure(baseline)
+        base_name = base_proc.name
+        aa = base_proc.key == cand_proc.key
+        base_dir = out / "baseline"
+        reused = (_seed_baseline_from_reference(suite_obj.name, base_dir, selected, models,
+                                                seeds) if base_proc.key == builtin().key
+                  else 0)
+        run_suite(suite_obj, tasks=[t.name for t in selected], models=models, seeds=seeds,
+                  out=base_dir, workers=workers, progress=progress, procedure=base_proc,
+                  executor=executor, scheduler=scheduler)
+    cand_dir = out / "candidate"
+    offset = aa_seed_offset if aa else 0
+    cand_run = run_suite(suite_obj, tasks=[t.name for t in selected], models=models,
+                         seeds=seeds, out=cand_dir, workers=workers, progress=progress,
+                         procedure=cand_proc, seed_offset=offset, executor=executor,
+                         scheduler=scheduler)
+
+    if len(cand_run.task_errors) == len(selected):
+        first = next(iter(cand_run.task_errors.values()))
+        raise UserError(f"{first} (it failed on every task compared).")
+    base_rows, cand_rows = load_results(base_dir), load_results(cand_dir)
+    base_seeds = sorted(set(base_rows["seed"]))[:seeds]
+    cand_seeds = list(range(offset, offset + seeds))
+    rng = np.random.default_rng(seed)
+    results: list[TaskComparison] = []
+    for task in selected:
+        metric = get_metric(task.metric)
+        if task.name in cand_run.task_errors:
+            results.append(TaskComparison(task.name, None, None, None, None, None, "error",
+                                          metric=task.metric,
+                                          note=cand_run.task_errors[task.name]))
+            continue
+        prepared = prepare_task(task)
+        arrays = load_arrays(prepared.folder)
+        y, row_id = np.asarray(arrays["y_holdout"]), np.asarray(arrays["row_id"])
+        naive = naive_prediction(task, np.asarray(arrays["y_train"]),
+                                 max(2, len(prepared.classes)))
+        base_preds = [_seed_predictions(base_dir, base_rows, task.name, m, base_seeds, row_id)
+                      for m in models]
+        cand_preds = [_seed_predictions(cand_dir, cand_rows, task.name, m, cand_seeds, row_id)
+                      for m in models]
+        pairs = [(b, c) for b, c in zip(base_preds, cand_preds) if b and c]
+        if not pairs:
+            results.append(TaskComparison(task.name, None, None, None, None, None, "error",
+                                          metric=task.metric,
+                                          note="no model finished on both sides"))
+            continue
+        boots = n_boot or (N_BOOTSTRAP_LARGE if len(y) > LARGE_HOLDOUT else N_BOOTSTRAP)
+        delta, se_boot, se_seed, seed_df, b_score, c_score = _task_delta(
+            task, metric, y, naive, [b for b, _ in pairs], [c for _, c in pairs], rng, boots)
+        leak = _leakage_of(cand_dir, task.name)
+        if delta is None:
+            results.append(TaskComparison(task.name, None, None, None, None, None, "n/a",
+                                          metric=task.metric, baseline_score=b_score,
+                                          candidate_score=c_score, leakage=leak,
+                                          note="the baseline does not beat the naive floor, "
+                                               "so there is no scale for a delta"))
+            continue
+        half, p = band_and_p(delta, se_boot, se_seed, seed_df)
+        results.append(TaskComparison(task.name, delta, delta - half, delta + half,
+                                      p, None, "same", metric=task.metric,
+                                      baseline_score=b_score, candidate_score=c_score,
+                                      leakage=leak, se=float(np.hypot(se_boot, se_seed))))
+    valid = [r for r in results if r.delta is not None]
+    for r, adjusted in zip(valid, holm([r.p_value for r in valid]) if valid else []):
+        r.p_holm = float(adjusted)
+        if adjusted < ALPHA and abs(r.delta) >= tolerance:
+            r.call = "better" if r.delta > 0 else "worse"
+    deltas = np.array([r.delta for r in valid])
+    median = float(np.median(deltas)) if len(deltas) else None
+    p_all = _signed_rank_p(deltas, tolerance, np.array([r.se for r in valid]))
+    reasons = [f"{r.task} is worse by {r.delta:+.3f} (Holm p {r.p_holm:.3f})"
+               for r in valid if r.call == "worse"]
+    if median is not None and p_all is not None and median < -tolerance and p_all < ALPHA:
+        reasons.append(f"median delta {median:+.3f} with Wilcoxon p {p_all:.3f} across "
+                       f"{len(deltas)} tasks")
+    leakage = [f"{r.task}: the candidate {r.leakage}" for r in results if r.leakage]
+    comparison = Comparison(
+        candidate=cand_proc.name, baseline=base_name, suite=suite_obj.name, aa=aa,
+        models=models, seeds=seeds, tolerance=tolerance, tasks=results,
+        wins=sum(r.call == "better" for r in results),
+        ties=sum(r.call == "same" for r in results),
+        losses=sum(r.call == "worse" for r in results), median_delta=median, p_value=p_all,
+        regression=bool(reasons), reasons=reasons, leakage=leakage, out=str(out),
+        reused_baseline_jobs=reused)
+    atomic_write_text(out / "report.json", json.dumps(comparison.to_dict(), indent=2))
+    atomic_write_text(out / "report.md", comparison.to_markdown())
+    return comparison
+
+
+def _leakage_of(folder: Path, task: str) -> str | None:
+    meta = json.loads((folder / RUN_FILE).read_text())
+    return meta.get("tasks", {}).get(task, {}).get("leakage")
+
+
+def _signed_rank_p(deltas: np.ndarray, tolerance: float, se=None) -> float | None:
+    """Two-sided Wilcoxon signed-rank p-value over the tasks; None with fewer than two non-zero
+    deltas. Deltas under the tolerance count as zero and are dropped. With ``se`` the test ranks
+    the standardised deltas (delta / se): still a signed-rank test of symmetry around zero, but a
+    noisy task (a wide band) no longer outweighs a precise one."""
+    d = np.where(np.abs(deltas) < tolerance, 0.0, np.asarray(deltas, float))
+    if se is not None:
+        se = np.asarray(se, float)
+        exact = se == 0  # seed-invariant models on identical features: no noise at all
+        z = np.divide(d, se, out=np.zeros_like(d), where=~exact)
+        # a non-zero delta without any noise outranks every noisy one
+        d = np.where(exact, np.sign(d) * (np.abs(z).max(initial=0.0) + 1.0), z)
+    if np.count_nonzero(d) < 2:
+        return None
+    return float(stats.wilcoxon(d, zero_method="wilcox", alternative="two-sided").pvalue)

@@ -1,0 +1,426 @@
+"""Placement: where a score stands against a task's reference, and a verdict in plain words.
+
+Numbers (all in the task metric's units unless said otherwise):
+- ``percentile``: share of reference runs the score beats, ties counting half, 0–100;
+- ``rank``: 1 = best among the reference runs plus this score (equal scores share a rank);
+- ``skill``: ``gain(score, naive) / gain(best, naive)``: 0 = the naive floor, 1 = the best
+  default ensemble, > 1 better; None when the best default does not beat naive beyond the noise;
+- ``noise``: half-width of the 95% bootstrap band (holdout rows resampled) of the best default's
+  score, or of the paired difference user − best when predictions are given.
+"""
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from tabpar.common.errors import UserError
+from tabpar.leaderboards.store import Leaderboard, load_leaderboard
+from tabpar.common.metrics import get_metric
+from tabpar.evaluation.reference import Reference
+from tabpar.execution.runner import load_arrays, prepare_task
+from tabpar.data.sources import read_table
+from tabpar.execution.store import align_to
+from tabpar.data.suites import Task, load_suite
+from tabpar.models.zoo import DEFAULT_ENSEMBLES
+
+VERDICTS = ("worse-than-naive", "below-baseline", "at-baseline", "above-baseline")
+DEFAULT_TOLERANCE = 0.05
+N_BOOTSTRAP = 1000
+
+
+def bootstrap_scores(metric, y, predictions: list, n_boot: int = N_BOOTSTRAP,
+                     seed: int = 0) -> np.ndarray:
+    """(n_boot, len(predictions)) scores on the same resamples of the holdout rows (paired)."""
+    rng = np.random.default_rng(seed)
+    n = len(y)
+    out = np.empty((n_boot, len(predictions)))
+    for b in range(n_boot):
+        counts = np.bincount(rng.integers(0, n, n), minlength=n)
+        for j, p in enumerate(predictions):
+            out[b, j] = metric(y, p, counts)
+    return out
+
+
+def half_width(values: np.ndarray) -> float:
+    """Half the width of the central 95% interval (percentile method)."""
+    values = np.asarray(values, float)
+    values = values[np.isfinite(values)]
+    lo, hi = np.percentile(values, [2.5, 97.5])
+    return float((hi - lo) / 2)
+
+
+def percentile_of(metric, score: float, reference_scores) -> float:
+    """Share (0–100) of reference scores that ``score`` beats; ties count half."""
+    gains = metric.gain(score, np.asarray(reference_scores, float))
+    return float(100.0 * (np.sum(gains > 0) + 0.5 * np.sum(gains == 0)) / len(gains))
+
+
+def competition_rank(metric, score: float, reference_scores) -> int:
+    """1-based rank of ``score`` among the reference plus itself; equal scores share a rank."""
+    gains = metric.gain(np.asarray(reference_scores, float), score)
+    return int(1 + np.sum(gains > 0))
+
+
+LEADERBOARD_KEYS = ("leaderboard_rank", "leaderboard_size", "top_percent",
+                    "leaderboard_percentile")
+
+
+def place_on_leaderboard(score: float, leaderboard: Leaderboard | str,
+                         store: str | Path | None = None) -> dict:
+    """Where ``score`` (in the leaderboard's units) would stand among a leaderboard's entries.
+
+    ``leaderboard``: a Leaderboard, or the name of a stored one (looked up in ``store``).
+    Returns a dict: ``leaderboard_rank`` (1 = best; the place the score would take among the
+    entries, equal scores sharing the better place, as in competition ranking),
+    ``leaderboard_size`` (the entries plus this score, so 1 <= rank <= size),
+    ``leaderboard_entries``, ``top_percent`` (rank / size x 100; smaller is better),
+    ``leaderboard_percentile`` (share 0-100 of the entries the score beats, ties half; larger is
+    better), ``leaderboard_best`` (the best entry), and ``leaderboard_note`` (what the numbers
+    cannot say).
+    """
+    board = (leaderboard if isinstance(leaderboard, Leaderboard)
+             else load_leaderboard(leaderboard, store))
+    if score is None or not np.isfinite(score):
+        raise UserError(f"The score {score!r} is not a finite number; give your holdout score "
+                        f"in the task's metric.")
+    score = float(score)
+    entries = board.scores
+    # a Leaderboard has the direction-normalised gain these helpers need from a metric
+    rank = competition_rank(board, score, entries)
+    size = len(entries) + 1
+    notes = []
+    if board.kind == "openml":
+        procedure = (board.meta.get("openml_task") or {}).get("estimation_procedure")
+        procedure = procedure or "the task's own estimation procedure"
+        notes.append(f"entries are OpenML run evaluations ({procedure}, over the whole "
+                     f"dataset), not scores on the same holdout as yours, so the rank is "
+                     f"indicative, not a like-for-like comparison")
+        # OpenML's multiclass AUC is a class-frequency-weighted average (from memory)
+        if board.metric == "roc_auc" and (board.meta.get("openml_task") or {}).get(
+                "type") == "multiclass":
+            notes.append("OpenML averages a multiclass AUC over classes differently from "
+                         "tabpar's macro one-vs-rest")
+    elif board.metric is None:
+        notes.append(f"the leaderboard does not record its metric (only that "
+                     f"{'lower' if board.lower_is_better else 'higher'} is better); the rank "
+                     f"means something only for a score in the same metric on the same rows")
+    else:
+        notes.append("the leaderboard does not record the rows its entries were scored on; "
+                     "the rank compares like with like only if they are the same holdout")
+    if size <= 20:
+        notes.append(f"with {len(entries)} entries one place moves top_percent by "
+                     f"{100 / size:.0f} points")
+    return {
+        "leaderboard": board.name, "leaderboard_task": board.task,
+        "leaderboard_rank": rank, "leaderboard_size": size,
+        "leaderboard_entries": len(entries), "top_percent": 100.0 * rank / size,
+        "leaderboard_percentile": percentile_of(board, score, entries),
+        "leaderboard_best": board.best, "leaderboard_lower_is_better": board.lower_is_better,
+        "leaderboard_note": "; ".join(notes),
+    }
+
+
+def leaderboard_lines(numbers: dict) -> list[str]:
+    """``place_on_leaderboard``'s answer as indented text lines."""
+    lines = [f"  leaderboard {numbers['leaderboard']}: rank {numbers['leaderboard_rank']} of "
+             f"{numbers['leaderboard_size']} (top {numbers['top_percent']:.1f}%) · beats "
+             f"{numbers['leaderboard_percentile']:.1f}% of its "
+             f"{numbers['leaderboard_entries']} entries (ties half) · best entry "
+             f"{numbers['leaderboard_best']:.4g}"]
+    if numbers.get("leaderboard_note"):
+        lines.append(f"  leaderboard caution: {numbers['leaderboard_note']}")
+    return lines
+
+
+def _check_leaderboard_fits(board: Leaderboard, task, metric) -> None:
+    """UserError unless ``board`` ranks scores of suite task ``task`` in its metric."""
+    if board.task not in (task.name, task.source):
+        raise UserError(f"Leaderboard '{board.name}' is for task '{board.task}', not "
+                        f"'{task.name}'; choose a leaderboard of this task (tabpar leaderboard "
+                        f"list).")
+    if board.metric is not None and board.metric != metric.name:
+        raise UserError(f"Leaderboard '{board.name}' ranks {board.metric}, but task "
+                        f"'{task.name}' is scored on {metric.name}; choose a leaderboard in "
+                        f"{metric.name}.")
+    if board.lower_is_better != metric.lower_is_better:
+        raise UserError(f"Leaderboard '{board.name}' ranks scores where "
+                        f"{'lower' if board.lower_is_better else 'higher'} is better, but "
+                        f"task '{task.name}' is scored on {metric.name}; its scores are in "
+                        f"another metric.")
+
+
+@dataclass
+class Placement:
+    """The answer of ``place``; renders as text (str) and as an HTML table in a notebook."""
+
+    task: str
+    metric: str
+    lower_is_better: bool
+    score: float
+    percentile: float
+    rank: int
+    n_reference: int
+    naive: float
+    best: float
+    best_model: str
+    par: float
+    par_model: str
+    skill: float | None
+    skill_note: str
+    noise: float
+    seed_spread: float
+    paired: bool
+    verdict: str
+    difficulty_percentile: float | None
+    message: str
+    tolerance: float
+    reference: str
+    model_means: dict = field(default_factory=dict)
+    reference_scores: dict = field(default_factory=dict)  # model → per-seed scores (for plots)
+    extra: dict = field(default_factory=dict)  # added by other answers (e.g. a leaderboard)
+
+    def to_dict(self) -> dict:
+        d = asdict(self)
+        d.update(d.pop("extra"))
+        return d
+
+    def __str__(self) -> str:
+        direction = "lower is better" if self.lower_is_better else "higher is better"
+        skill = "n/a" if self.skill is None else f"{self.skill:.2f}"
+        diff = ("n/a" if self.difficulty_percentile is None
+                else f"{self.difficulty_percentile:.0f}")
+        lines = [
+            f"{self.task}: {self.metric} {self.score:.4g} ({direction})  →  {self.verdict}",
+            f"  {self.message}",
+            f"  beats {self.percentile:.0f}% of the {self.n_reference} reference runs "
+            f"(percentile); rank {self.rank} of {self.n_reference + 1}",
+            f"  naive {self.naive:.4g} · par {self.par:.4g} ({self.par_model}) · best "
+            f"{self.best:.4g} ({self.best_model}) · skill {skill}",
+            f"  noise ±{self.noise:.3g} (95% bootstrap over holdout rows"
+            f"{', paired with your predictions' if self.paired else ''}) · seed spread "
+            f"{self.seed_spread:.3g}",
+            f"  task difficulty percentile {diff} among the reference's tasks (higher = harder)",
+        ]
+        if self.skill is None and self.skill_note:
+            lines.append(f"  skill: {self.skill_note}")
+        extra = dict(self.extra)
+        if "leaderboard_rank" in extra:
+            lines.extend(leaderboard_lines(extra))
+            extra = {k: v for k, v in extra.items() if not k.startswith("leaderboard")
+                     and k != "top_percent"}
+        for key, value in extra.items():
+            lines.append(f"  {key}: {value}")
+        return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        rows = "".join(f"<tr><th style='text-align:left'>{k}</th><td>{v}</td></tr>"
+                       for k, v in self.to_dict().items()
+                       if k not in ("reference_scores", "model_means"))
+        return f"<table>{rows}</table>"
+
+
+def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: str):
+    """The user's predictions aligned to ``row_id``; UserError for every kind of mismatch."""
+    frame = read_table(Path(path))
+    for col in ("row_id", "prediction"):
+        if col not in frame.columns:
+            raise UserError(f"{path} has no '{col}' column; it needs columns row_id and "
+                            f"prediction (see task.json from 'tabpar export').")
+    ids = pd.to_numeric(frame["row_id"], errors="coerce")
+    if ids.isna().any() or (ids % 1 != 0).any():
+        bad = frame["row_id"][ids.isna() | (ids % 1 != 0)].iloc[0]
+        raise UserError(f"{path} has a row_id that is not a whole number: {bad!r}.")
+    ids = ids.astype(np.int64).to_numpy()
+    dup = pd.Series(ids).duplicated()
+    if dup.any():
+        raise UserError(f"{path} lists row_id {ids[dup.to_numpy()][0]} more than once; give "
+                        f"each holdout row exactly one prediction.")
+    expected = set(row_id.tolist())
+    unknown = [i for i in ids if i not in expected]
+    if unknown:
+        raise UserError(f"{path} has row_id {unknown[0]}, which is not a holdout row of task "
+                        f"'{task}' (wrong task or a training row?); predict only the rows of "
+                        f"holdout.csv.")
+    missing = expected - set(ids.tolist())
+    if missing:
+        raise UserError(f"{path} lacks {len(missing):,} holdout rows of task '{task}' (e.g. "
+                        f"row_id {min(missing)}); predict every row of holdout.csv.")
+    values = pd.to_numeric(frame["prediction"], errors="coerce")
+    bad = values.isna() | ~np.isfinite(values.to_numpy(dtype=float, na_value=np.nan))
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise UserError(f"{path} has a prediction that is missing, not numeric or infinite "
+                        f"({frame['prediction'].iloc[i]!r} for row_id {ids[i]}); fix it.")
+    values = values.to_numpy(dtype=float)
+    if task_type == "binary" and ((values < 0) | (values > 1)).any():
+        raise UserError(f"{path} has predictions outside 0..1, but task '{task}' needs the "
+                        f"probability of the positive class.")
+    if task_type == "multiclass":
+        raise UserError(f"Task '{task}' is multiclass; place it with --score (predictions "
+                        f"files take one probability column, for binary tasks).")
+    order = pd.Series(values, index=ids)
+    return order.loc[row_id].to_numpy()
+
+
+def _align(ids, prediction, row_id, folder):
+    """Reference predictions reordered to ``row_id``."""
+    aligned = align_to(ids, prediction, row_id)
+    if aligned is None:
+        raise UserError(f"The stored predictions in {folder} do not cover the task's holdout "
+                        f"rows; rebuild the reference.")
+    return aligned
+
+
+def _check_fingerprint(ref: Reference, name: str, fingerprint: str, force: bool) -> None:
+    expected = ref.task(name).fingerprint
+    if fingerprint != expected and not force:
+        raise UserError(f"The data of task '{name}' no longer matches the reference "
+                        f"{ref.folder} (fingerprint {fingerprint} now, {expected} in the "
+                        f"reference); rebuild the reference, or pass --force to place anyway.")
+
+
+def place(task: str, score: float | None = None, predictions: str | Path | None = None,
+          suite: str | None = None, reference: str | Path = "default",
+          tolerance: float = DEFAULT_TOLERANCE, force: bool = False,
+          leaderboard: Leaderboard | str | None = None) -> Placement:
+    """Place a holdout score (or a predictions file, scored here) on a suite task.
+
+    ``leaderboard`` (a Leaderboard or a stored name): also place the score on it; the numbers of
+    ``place_on_leaderboard`` go into ``Placement.extra``.
+    """
+    if (score is None) == (predictions is None):
+        raise UserError("Give exactly one of --score and --predictions.")
+    ref = Reference(reference)
+    tref = ref.task(task)
+    metric = get_metric(tref.metric)
+    suite_obj = load_suite(suite or ref.suite)
+    definition = suite_obj.task(task)
+    board = None
+    if leaderboard is not None:  # checked before the slow part, so a mistake fails fast
+        board = (leaderboard if isinstance(leaderboard, Leaderboard)
+                 else load_leaderboard(leaderboard))
+        _check_leaderboard_fits(board, definition, metric)
+    placement = place_task(definition, ref, score=score, predictions=predictions,
+                           tolerance=tolerance, force=force)
+    if board is not None:
+        placement.extra.update(place_on_leaderboard(placement.score, board))
+    return placement
+
+
+def difficulty_percentile(difficulty: float, others) -> float | None:
+    """Share (0–100) of ``others`` that ``difficulty`` exceeds, ties half (higher = harder)."""
+    others = np.asarray(list(others), float)
+    if not len(others):
+        return None
+    return float(100.0 * (np.sum(others < difficulty) + 0.5 * np.sum(others == difficulty))
+                 / len(others))
+
+
+def place_task(definition: Task, ref: Reference, score: float | None = None,
+               predictions: str | Path | None = None, tolerance: float = DEFAULT_TOLERANCE,
+               force: bool = False, difficulties: dict | None = None) -> Placement:
+    """Place a score (or predictions) on ``definition`` against the results in ``ref``.
+
+    ``difficulties``: task → difficulty to rank this task's difficulty among (default: the
+    other tasks of ``ref``).
+    """
+    task = definition.name
+    tref = ref.task(task)
+    metric = get_metric(tref.metric)
+    paired = predictions is not None
+    user = None
+    # the holdout rows are needed for the bootstrap band even when only a score is given
+    prepared = prepare_task(definition)
+    _check_fingerprint(ref, task, prepared.fingerprint, force)
+    arrays = load_arrays(prepared.folder)
+    y, row_id = np.asarray(arrays["y_holdout"]), np.asarray(arrays["row_id"])
+    if paired:
+        user = read_predictions_file(Path(predictions), row_id, definition.type, task)
+        score = metric(y, user)
+    if score is None or not np.isfinite(score):
+        raise UserError(f"The score {score!r} is not a finite number; give your holdout score "
+                        f"in the task's metric.")
+    score = float(score)
+
+    named = {"best": tref.best_model, "par": tref.par_model, "naive": "naive"}
+    ref_preds = {role: _align(*ref.predictions(task, model), row_id, ref.folder)
+                 for role, model in named.items()}
+    roles = list(named)
+    sets = [ref_preds[r] for r in roles] + ([user] if paired else [])
+    boot = bootstrap_scores(metric, y, sets)
+    best_noise = half_width(boot[:, roles.index("best")])
+    bands = {}
+    for j, role in enumerate(roles):
+        reference_value = {"best": tref.best, "par": tref.par, "naive": tref.naive}[role]
+        centre = float(metric.gain(score, reference_value))
+        width = (half_width(metric.gain(boot[:, -1], boot[:, j])) if paired else best_noise)
+        bands[role] = (centre - width, centre + width)
+    noise = (bands["best"][1] - bands["best"][0]) / 2
+
+    gain_best = float(metric.gain(tref.best, tref.naive))
+    if gain_best > best_noise:
+        skill = float(metric.gain(score, tref.naive)) / gain_best
+        par_skill = float(metric.gain(tref.par, tref.naive)) / gain_best
+        skill_note = ""
+    else:
+        skill = par_skill = None
+        skill_note = (f"the best default ({tref.best_model} {tref.best:.4g}) is not better than "
+                      f"naive ({tref.naive:.4g}) beyond the noise (±{best_noise:.3g}): nothing "
+                      f"to learn on this split")
+
+    if bands["naive"][1] < 0:
+        verdict = "worse-than-naive"
+    elif bands["best"][0] > 0:
+        verdict = "above-baseline"
+    elif skill is not None and skill < par_skill - tolerance and bands["par"][1] < 0:
+        verdict = "below-baseline"
+    else:
+        verdict = "at-baseline"
+
+    runs = [s for m in tref.scores for s in tref.scores[m]]
+    if difficulties is None:
+        difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
+    difficulty_pct = difficulty_percentile(tref.difficulty, difficulties.values())
+    message = _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance)
+    return Placement(
+        task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
+        percentile=percentile_of(metric, score, runs),
+        rank=competition_rank(metric, score, runs), n_reference=len(runs), naive=tref.naive,
+        best=tref.best, best_model=tref.best_model, par=tref.par, par_model=tref.par_model,
+        skill=skill, skill_note=skill_note, noise=float(noise), seed_spread=tref.seed_spread,
+        paired=paired, verdict=verdict, difficulty_percentile=difficulty_pct, message=message,
+        tolerance=tolerance, reference=str(ref.folder), model_means=dict(tref.means),
+        reference_scores={m: list(v) for m, v in tref.scores.items()})
+
+
+def _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance) -> str:
+    fmt = lambda v: f"{v:.4g}"  # noqa: E731
+    if verdict == "worse-than-naive":
+        floor = "the mean" if "regression" in metric.task_types else "the class prior"
+        return (f"Worse than predicting {floor} ({fmt(tref.naive)}) by more than the noise (±{noise:.3g}): look for a bug "
+                f"before tuning anything — predictions misaligned with row_id, labels given "
+                f"instead of probabilities, a target transform not undone.")
+    if verdict == "above-baseline":
+        return (f"Better than the best default ensemble ({tref.best_model} {fmt(tref.best)}) by "
+                f"more than the noise (±{noise:.3g}). If this is surprising, check that no "
+                f"holdout information reached training.")
+    beaten_by = sorted((m for m in DEFAULT_ENSEMBLES if m in tref.means
+                        and metric.better(tref.means[m], score)),
+                       key=lambda m: -float(metric.gain(tref.means[m], score)))
+    if verdict == "below-baseline":
+        listing = ", ".join(f"{m} {fmt(tref.means[m])} (by {abs(tref.means[m] - score):.3g})"
+                            for m in beaten_by)
+        return (f"Skill {skill:.2f} is more than {tolerance:g} under par's "
+                f"({tref.par_model} {fmt(tref.par)}), beyond the noise (±{noise:.3g}); beaten "
+                f"by {listing}. Usual causes: category codes learned separately on the holdout "
+                f"rows, an RMSLE task trained without log1p, rows shuffled against row_id, a "
+                f"leaky or random validation split during tuning.")
+    if skill is None:
+        return (f"At the baseline: {skill_note}; this task's holdout does not reward "
+                f"modelling, so a weak score here is the data's, not the pipeline's.")
+    return (f"Within the standard baseline's range: skill {skill:.2f} against par "
+            f"{tref.par_model} {fmt(tref.par)} and best {tref.best_model} {fmt(tref.best)}, "
+            f"differences inside the noise (±{noise:.3g}) or the tolerance ({tolerance:g}).")

@@ -1,0 +1,192 @@
+"""Published references: results folders under ``results/reference/NAME`` read for placement.
+
+A reference is an ordinary results folder (run.json, jobs.jsonl, predictions/) plus
+``provenance.json``; the per-task summaries here (naive floor, best and par of the default
+ensembles, difficulty) are what every placement compares against.
+"""
+from __future__ import annotations
+
+import json
+import sys
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from tabpar.common.errors import UserError
+from tabpar.common.metrics import get_metric
+from tabpar.execution.runner import available_cores, library_versions, run_suite
+from tabpar.execution.store import (RUN_FILE, STORE_FORMAT, atomic_write_text, load_results,
+                    read_predictions)
+from tabpar.common.paths import builtin_folder
+from tabpar.models.zoo import DEFAULT_ENSEMBLES
+
+
+def published_root() -> Path:
+    """The published results that ship with tabpar (package data; ``results/`` of a checkout)."""
+    return builtin_folder("results")
+
+
+def resolve_reference(reference: str | Path) -> Path:
+    """A published reference name (``default``, ``quick``) or a results folder path."""
+    text = str(reference)
+    published = published_root() / "reference" / text
+    if "/" not in text and (published / RUN_FILE).exists():
+        return published
+    path = Path(text)
+    if (path / RUN_FILE).exists():
+        return path
+    names = sorted(p.name for p in (published_root() / "reference").glob("*") if p.is_dir())
+    raise UserError(f"Unknown reference '{text}': it is neither a published reference "
+                    f"({', '.join(names) or 'none published'}) nor a results folder with "
+                    f"{RUN_FILE}.")
+
+
+def check_format(meta: dict, folder) -> None:
+    """UserError unless a results folder's run.json is in the format this version reads."""
+    if meta.get("format") != STORE_FORMAT:
+        raise UserError(f"{folder} was written by an incompatible tabpar version (results format "
+                        f"{meta.get('format')}, this one reads {STORE_FORMAT}); rebuild it with "
+                        f"this version.")
+
+
+def headroom_taken(metric_name: str, naive: float, best: float) -> float:
+    """Share of the possible improvement over naive that ``best`` takes (1 = all of it).
+
+    Loss metrics: ``1 - best/naive``; bounded scores: ``(best - naive) / (perfect - naive)``.
+    """
+    metric = get_metric(metric_name)
+    if metric.bounded:
+        room = metric.perfect - naive
+        return float((best - naive) / room) if room != 0 else 0.0
+    return float(1.0 - best / naive) if naive != 0 else 0.0
+
+
+@dataclass
+class TaskReference:
+    """One task's reference numbers, in the task metric's units."""
+
+    task: str
+    metric: str
+    lower_is_better: bool
+    fingerprint: str
+    scores: dict  # model → list of holdout scores, one per seed (ascending seed)
+    means: dict  # model → mean over seeds
+    naive: float
+    best: float
+    best_model: str
+    par: float
+    par_model: str  # the default ensemble whose mean is par (closest to it)
+    seed_spread: float  # std over seeds of the best default's scores (0 for one seed)
+
+    @property
+    def difficulty(self) -> float:
+        """``1 - headroom taken``: 0 = the best default is perfect, 1 = no better than naive."""
+        return 1.0 - headroom_taken(self.metric, self.naive, self.best)
+
+
+class Reference:
+    """A results folder read as a reference."""
+
+    def __init__(self, folder: str | Path):
+        self.folder = resolve_reference(folder)
+        self.meta = json.loads((self.folder / RUN_FILE).read_text(encoding="utf-8"))
+        check_format(self.meta, self.folder)
+        rows = load_results(self.folder)
+        self.rows = rows[rows["status"] == "ok"] if not rows.empty else rows
+        self._cache: dict = {}
+
+    @property
+    def suite(self) -> str:
+        return self.meta.get("suite", "")
+
+    @property
+    def tasks(self) -> list[str]:
+        return [t for t in self.meta.get("tasks", {}) if t in set(self.rows.get("task", []))]
+
+    def task(self, name: str) -> TaskReference:
+        if name in self._cache:
+            return self._cache[name]
+        if name not in self.tasks:
+            raise UserError(f"Task '{name}' is not in the reference {self.folder}; it has "
+                            f"{', '.join(self.tasks)}.")
+        rows = self.rows[self.rows["task"] == name].sort_values(["model", "seed"])
+        metric = get_metric(rows["metric"].iloc[0])
+        scores = {m: g["score"].astype(float).tolist() for m, g in rows.groupby("model")}
+        means = {m: float(np.mean(v)) for m, v in scores.items()}
+        ensembles = {m: means[m] for m in DEFAULT_ENSEMBLES if m in means}
+        if "naive" not in means or not ensembles:
+            raise UserError(f"The reference {self.folder} lacks the naive floor or the default "
+                            f"ensembles for task '{name}'; rebuild it with every model.")
+        sign = 1 if metric.lower_is_better else -1
+        best_model = min(ensembles, key=lambda m: sign * ensembles[m])
+        par = float(np.median(list(ensembles.values())))
+        par_model = min(ensembles, key=lambda m: abs(ensembles[m] - par))
+        best_scores = scores[best_model]
+        ref = TaskReference(
+            task=name, metric=metric.name, lower_is_better=metric.lower_is_better,
+            fingerprint=self.meta["tasks"][name]["fingerprint"], scores=scores, means=means,
+            naive=means["naive"], best=ensembles[best_model], best_model=best_model, par=par,
+            par_model=par_model,
+            seed_spread=float(np.std(best_scores, ddof=1)) if len(best_scores) > 1 else 0.0)
+        self._cache[name] = ref
+        return ref
+
+    def predictions(self, task: str, model: str, seed: int | None = None):
+        """(row_id, prediction) of one reference job (the lowest seed when not given)."""
+        rows = self.rows[(self.rows["task"] == task) & (self.rows["model"] == model)]
+        if seed is not None:
+            rows = rows[rows["seed"] == seed]
+        rows = rows.sort_values("seed")
+        if rows.empty or not isinstance(rows["predictions"].iloc[0], str):
+            raise UserError(f"The reference {self.folder} has no stored predictions for "
+                            f"{task}/{model}; rebuild it.")
+        return read_predictions(self.folder / rows["predictions"].iloc[0])
+
+    def difficulties(self) -> dict:
+        """Task → difficulty (1 − headroom taken), for every task of the reference."""
+        return {t: self.task(t).difficulty for t in self.tasks}
+
+
+def build_reference(suite: str = "default", out: str | Path | None = None, seeds: int = 3,
+                    workers: int | None = None, progress: bool = False, command: str = ""):
+    """Run every model of the zoo × ``seeds`` on ``suite`` into ``out`` and write provenance.
+
+    Default ``out``: ``results/reference/SUITE``. Returns the RunResult.
+    """
+    out = Path(out) if out is not None else published_root() / "reference" / str(suite)
+    result = run_suite(suite=suite, seeds=seeds, out=out, workers=workers, progress=progress)
+    frame = load_results(out)
+    provenance = {
+        "command": command or " ".join(["tabpar"] + sys.argv[1:]),
+        "created_at": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "suite": result.suite, "seeds": seeds, "cores": available_cores(),
+        "versions": library_versions(),
+        "fingerprints": {t: info["fingerprint"] for t, info in result.tasks.items()},
+        "jobs": int(len(frame)), "ok": int((frame["status"] == "ok").sum()),
+    }
+    atomic_write_text(out / "provenance.json", json.dumps(provenance, indent=2))
+    return result
+
+
+def model_skills(reference: Reference, against: Reference | None = None) -> pd.DataFrame:
+    """Skill of each model's mean score per task (0 = naive, 1 = best default), long format.
+
+    ``against``: measure ``reference``'s models on the naive/best of another reference (to
+    overlay a new run on the published one). Columns: task, model, score, skill, difficulty.
+    """
+    base = against or reference
+    rows = []
+    for task in reference.tasks:
+        if task not in base.tasks:
+            continue
+        b = base.task(task)
+        metric = get_metric(b.metric)
+        scale = float(metric.gain(b.best, b.naive))
+        for model, mean in reference.task(task).means.items():
+            skill = float(metric.gain(mean, b.naive)) / scale if scale > 0 else float("nan")
+            rows.append({"task": task, "model": model, "score": mean, "skill": skill,
+                         "difficulty": b.difficulty})
+    return pd.DataFrame(rows)

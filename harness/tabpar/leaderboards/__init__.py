@@ -1,0 +1,2 @@
+"""Stage 6, leaderboards: externally published scores for one task (a file you bring, OpenML run
+evaluations), stored, listed and placed against."""

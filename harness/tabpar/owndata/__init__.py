@@ -1,0 +1,1 @@
+"""Stage 7, own data: a user's table as a task, the zoo within a budget, diagnostics, the answer."""

@@ -1,0 +1,1 @@
+"""Stage 8, report: plots (matplotlib, Display-style) and rendered reports."""

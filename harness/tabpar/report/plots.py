@@ -1,0 +1,201 @@
+"""Comparison plots (matplotlib, Agg backend): PNG or SVG chosen by the file extension."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from tabpar.common.errors import UserError
+from tabpar.evaluation.reference import Reference, model_skills
+from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
+
+# Okabe–Ito colour-blind-safe palette
+PALETTE = {"naive": "#999999", "linear": "#CC79A7", "rf": "#009E73", "et": "#56B4E9",
+           "hgb": "#E69F00", "xgb": "#0072B2", "lgbm": "#D55E00"}
+USER_COLOUR = "#000000"
+
+
+def _figure(width, height, **grid):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    return plt.subplots(figsize=(width, height), dpi=120, **grid)
+
+
+def _save(fig, path: Path) -> Path:
+    path = Path(path)
+    if path.suffix.lower() not in (".png", ".svg"):
+        raise UserError(f"Plot file {path} must end in .png or .svg.")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fig.savefig(path, bbox_inches="tight")
+    except OSError as exc:
+        raise UserError(f"Cannot write the plot {path} ({exc.strerror}); choose another "
+                        f"path.") from None
+    finally:
+        import matplotlib.pyplot as plt
+
+        plt.close(fig)
+    return path
+
+
+def _direction(lower_is_better: bool) -> str:
+    return "← better (lower)" if lower_is_better else "better (higher) →"
+
+
+def placement_plot(placement, path, leaderboard=None) -> Path:
+    """The task's reference scores per model (a point per seed), naive and best as lines, the
+    best default's noise band shaded, and the placed score marked. With a ``leaderboard`` (a
+    tabpar.leaderboards.store.Leaderboard), a second panel shows its entries as a ranked curve."""
+    models = [m for m in MODELS if m in placement.reference_scores]
+    height = 0.55 * len(models) + 2.2
+    if leaderboard is None:
+        fig, ax = _figure(8, height)
+    else:
+        fig, (ax, board_ax) = _figure(13.5, max(height, 4.0), ncols=2,
+                                      gridspec_kw={"width_ratios": [3, 2], "wspace": 0.3})
+        leaderboard_panel(board_ax, leaderboard, placement.score)
+    rng = np.random.default_rng(0)
+    for i, model in enumerate(models):
+        scores = np.asarray(placement.reference_scores[model], float)
+        jitter = rng.uniform(-0.12, 0.12, len(scores))
+        ax.scatter(scores, i + jitter, s=36, color=PALETTE.get(model, "#444444"),
+                   edgecolor="black", linewidth=0.5, zorder=3)
+    ax.scatter([], [], s=36, color="white", edgecolor="black", linewidth=0.5,
+               label="reference runs (one point per seed)")
+    ax.axvspan(placement.best - placement.noise, placement.best + placement.noise,
+               color="#56B4E9", alpha=0.18, zorder=1,
+               label=f"best default ± noise (95% bootstrap, ±{placement.noise:.3g})")
+    ax.axvline(placement.best, color="#0072B2", linestyle="--", linewidth=1.2, zorder=2,
+               label=f"best default: {placement.best_model} {placement.best:.4g}")
+    ax.axvline(placement.naive, color="#999999", linestyle=":", linewidth=1.5, zorder=2,
+               label=f"naive floor {placement.naive:.4g}")
+    ax.axvline(placement.score, color=USER_COLOUR, linewidth=2.2, zorder=4,
+               label=f"placed score {placement.score:.4g} ({placement.verdict})")
+    ax.scatter([placement.score], [len(models) - 0.4], marker="v", s=90, color=USER_COLOUR,
+               zorder=5)
+    ax.set_yticks(range(len(models)))
+    ax.set_yticklabels(models)
+    ax.set_ylim(-0.6, len(models) - 0.1)
+    ax.set_xlabel(f"{placement.metric} on the holdout  ({_direction(placement.lower_is_better)})")
+    ax.set_title(f"{placement.task}: score placed against the baseline reference\n"
+                 f"beats {placement.percentile:.0f}% of {placement.n_reference} reference runs · "
+                 f"verdict: {placement.verdict}", fontsize=11)
+    ax.grid(axis="x", alpha=0.3)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
+              frameon=False)
+    return _save(fig, path)
+
+
+def leaderboard_panel(ax, leaderboard, score: float) -> None:
+    """A leaderboard's entries as a ranked curve (rank 1 = best at the left), the placed score
+    as a line across it and a marker at the rank it would take."""
+    from tabpar.evaluation.placement import place_on_leaderboard
+
+    ranked = leaderboard.ranked()
+    where = place_on_leaderboard(score, leaderboard)
+    ranks = np.arange(1, len(ranked) + 1)
+    ax.plot(ranks, ranked, color="#0072B2", linewidth=1.4, zorder=2,
+            marker="o" if len(ranked) <= 60 else None, markersize=3.5,
+            label=f"entries ({len(ranked)}), best first")
+    ax.axhline(score, color=USER_COLOUR, linewidth=1.2, linestyle="--", zorder=3)
+    ax.scatter([where["leaderboard_rank"]], [score], marker="D", s=70, color=USER_COLOUR,
+               zorder=4, label=f"placed score {score:.4g}: rank {where['leaderboard_rank']} of "
+                               f"{where['leaderboard_size']}")
+    if len(ranked) > 200:  # thousands of runs: ranks are easier to read on a log axis
+        ax.set_xscale("log")
+    ax.set_xlabel("rank on the leaderboard (1 = best)")
+    ax.set_ylabel(f"{leaderboard.score_column}  "
+                  f"({'lower' if leaderboard.lower_is_better else 'higher'} is better)")
+    ax.set_title(f"leaderboard {leaderboard.name}\ntop {where['top_percent']:.1f}% · beats "
+                 f"{where['leaderboard_percentile']:.1f}% of its entries", fontsize=11)
+    ax.grid(alpha=0.3)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=1, fontsize=8,
+              frameon=False)
+
+
+def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> Path:
+    """Per task, the skill of each default ensemble; tasks ordered by difficulty (hardest at
+    the top). ``overlay``: a run folder of the same suite, its default ensembles drawn hollow
+    on the reference's scale (its naive floor and best default)."""
+    table = model_skills(reference)
+    table = table[table["model"].isin(DEFAULT_ENSEMBLES)]
+    if table.empty:
+        raise UserError(f"The reference {reference.folder} has no default-ensemble results to "
+                        f"plot.")
+    extra = None
+    if overlay is not None:
+        if overlay.suite != reference.suite:
+            raise UserError(f"The overlay {overlay.folder} is a run of suite '{overlay.suite}' "
+                            f"but the reference is of suite '{reference.suite}' (other rows, "
+                            f"other holdouts); pass --reference {overlay.suite} or overlay a "
+                            f"run of '{reference.suite}'.")
+        extra = model_skills(overlay, against=reference)
+        extra = extra[extra["model"].isin(DEFAULT_ENSEMBLES) & extra["task"].isin(table["task"])]
+    order = table.groupby("task")["difficulty"].first().sort_values().index.tolist()
+    fig, ax = _figure(8.5, 0.5 * len(order) + 2.4)
+    low = -0.5  # a model far below naive would squash every other point
+    shown = pd.concat([table["skill"], extra["skill"]]) if extra is not None else table["skill"]
+    left = max(low, min(-0.1, float(np.nanmin(shown)) - 0.05))
+    right = max(1.1, float(np.nanmax(shown)) + 0.05)
+    for j, model in enumerate(DEFAULT_ENSEMBLES):
+        rows = np.arange(len(order)) + (j - 2) * 0.1
+        sub = table[table["model"] == model].set_index("task").reindex(order)
+        ax.scatter(np.clip(sub["skill"], low, None), rows, s=34, color=PALETTE[model],
+                   edgecolor="black", linewidth=0.4, zorder=3, label=model)
+        if extra is not None:
+            mine = extra[extra["model"] == model].set_index("task").reindex(order)
+            ax.scatter(np.clip(mine["skill"], low, None), rows, s=95, facecolor="none",
+                       edgecolor=PALETTE[model], linewidth=1.6, zorder=4)
+    if extra is not None:
+        ax.scatter([], [], s=95, facecolor="none", edgecolor="black", linewidth=1.6,
+                   label=f"hollow: {Path(overlay.folder).name}")
+    ax.axvline(0, color="#999999", linestyle=":", label="naive floor (skill 0)")
+    ax.axvline(1, color="#0072B2", linestyle="--", label="best default (skill 1)")
+    labels = [f"{t}  (difficulty {table[table['task'] == t]['difficulty'].iloc[0]:.2f})"
+              for t in order]
+    ax.set_yticks(range(len(order)))
+    ax.set_yticklabels(labels, fontsize=9)
+    ax.set_xlim(left, right)
+    ax.set_xlabel("skill = gain over naive / best default's gain  (better →"
+                  + (f"; under {low} drawn at {low})" if left <= low else ")"))
+    ax.set_title(f"Default ensembles across suite '{reference.suite}'\n"
+                 f"(tasks ordered by difficulty, hardest at the top)", fontsize=11)
+    ax.grid(axis="x", alpha=0.3)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=4, fontsize=8,
+              frameon=False)
+    return _save(fig, path)
+
+
+def forest_plot(comparison, path) -> Path:
+    """One row per task: delta and its 95% band, a zero line, wins/ties/losses in the title."""
+    rows = [t for t in comparison.tasks if t.delta is not None]
+    if not rows:
+        raise UserError("No task has a delta to plot (every task failed or had no scale).")
+    fig, ax = _figure(8, 0.45 * len(rows) + 2.2)
+    colours = {"better": "#009E73", "worse": "#D55E00", "same": "#666666"}
+    for i, t in enumerate(rows):
+        colour = colours.get(t.call, "#666666")
+        ax.plot([t.low, t.high], [i, i], color=colour, linewidth=2.2, solid_capstyle="butt")
+        ax.scatter([t.delta], [i], color=colour, edgecolor="black", s=46, zorder=3)
+    for call, colour in colours.items():
+        ax.scatter([], [], color=colour, edgecolor="black", s=46, label=call)
+    ax.axvline(0, color="black", linewidth=1)
+    if comparison.tolerance:
+        ax.axvspan(-comparison.tolerance, comparison.tolerance, color="#999999", alpha=0.15,
+                   label=f"tolerance ±{comparison.tolerance:g}")
+    ax.set_yticks(range(len(rows)))
+    ax.set_yticklabels([f"{t.task}{' (leak)' if t.leakage else ''}" for t in rows])
+    ax.invert_yaxis()
+    ax.set_xlabel("delta: candidate's gain over baseline / baseline's gain over naive "
+                  "(better →)")
+    verdict = "REGRESSION" if comparison.regression else "no regression"
+    ax.set_title(f"{comparison.candidate} vs {comparison.baseline}"
+                 f"{' (A/A)' if comparison.aa else ''}\nwins {comparison.wins} · ties "
+                 f"{comparison.ties} · losses {comparison.losses} · {verdict}", fontsize=11)
+    ax.grid(axis="x", alpha=0.3)
+    ax.legend(loc="lower right", fontsize=8)
+    return _save(fig, path)

@@ -24,6 +24,7 @@ from scipy import stats
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
+from tabpar.evaluation.stats import bootstrap_scores, holm, signed_rank_p
 from tabpar.procedure.variants import builtin, resolve_procedure
 from tabpar.evaluation.reference import check_format, published_root
 from tabpar.execution.runner import (library_versions, load_arrays, preparation_code_digest, prepare_task,
@@ -131,19 +132,6 @@ class Comparison:
                          ) + "\n"
 
 
-def holm(p_values) -> np.ndarray:
-    """Holm's step-down adjusted p-values (family-wise error control), same order as given."""
-    p = np.asarray(p_values, float)
-    order = np.argsort(p)
-    m = len(p)
-    adjusted = np.empty(m)
-    running = 0.0
-    for rank, index in enumerate(order):
-        running = max(running, min(1.0, (m - rank) * p[index]))
-        adjusted[index] = running
-    return adjusted
-
-
 def naive_prediction(task: Task, y_train: np.ndarray, n_classes: int):
     """The naive floor's constant prediction (mean, in log1p space for RMSLE; class prior)."""
     if task.type == "regression":
@@ -191,13 +179,12 @@ def _task_delta(task: Task, metric, y, naive, base_preds, cand_preds, rng, n_boo
         seed_df = 2 * (k - 1)
     else:
         se_seed, seed_df = 0.0, None
-    n = len(y)
-    boot = np.empty(n_boot)
-    for b in range(n_boot):
-        counts = np.bincount(rng.integers(0, n, n), minlength=n)
-        gains = [metric.gain(metric(y, c, counts), metric(y, p, counts))
-                 for cs, bs in zip(cand_preds, base_preds) for c, p in zip(cs, bs)]
-        boot[b] = np.mean(gains) / scale
+    # paired: every (candidate, baseline) pair of model and seed scored on the same resamples
+    cand_flat = [c for cs in cand_preds for c in cs]
+    base_flat = [p for bs in base_preds for p in bs]
+    scores = bootstrap_scores(metric, y, cand_flat + base_flat, n_boot, seed=rng)
+    m = len(cand_flat)
+    boot = metric.gain(scores[:, :m], scores[:, m:]).mean(axis=1) / scale
     se_boot = float(np.nanstd(boot, ddof=1))
     return (delta, se_boot, se_seed, seed_df, float(base_scores.mean()),
             float(cand_scores.mean()))
@@ -359,7 +346,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
             r.call = "better" if r.delta > 0 else "worse"
     deltas = np.array([r.delta for r in valid])
     median = float(np.median(deltas)) if len(deltas) else None
-    p_all = _signed_rank_p(deltas, tolerance, np.array([r.se for r in valid]))
+    p_all = signed_rank_p(deltas, tolerance, np.array([r.se for r in valid]))
     reasons = [f"{r.task} is worse by {r.delta:+.3f} (Holm p {r.p_holm:.3f})"
                for r in valid if r.call == "worse"]
     if median is not None and p_all is not None and median < -tolerance and p_all < ALPHA:
@@ -382,20 +369,3 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
 def _leakage_of(folder: Path, task: str) -> str | None:
     meta = json.loads((folder / RUN_FILE).read_text())
     return meta.get("tasks", {}).get(task, {}).get("leakage")
-
-
-def _signed_rank_p(deltas: np.ndarray, tolerance: float, se=None) -> float | None:
-    """Two-sided Wilcoxon signed-rank p-value over the tasks; None with fewer than two non-zero
-    deltas. Deltas under the tolerance count as zero and are dropped. With ``se`` the test ranks
-    the standardised deltas (delta / se): still a signed-rank test of symmetry around zero, but a
-    noisy task (a wide band) no longer outweighs a precise one."""
-    d = np.where(np.abs(deltas) < tolerance, 0.0, np.asarray(deltas, float))
-    if se is not None:
-        se = np.asarray(se, float)
-        exact = se == 0  # seed-invariant models on identical features: no noise at all
-        z = np.divide(d, se, out=np.zeros_like(d), where=~exact)
-        # a non-zero delta without any noise outranks every noisy one
-        d = np.where(exact, np.sign(d) * (np.abs(z).max(initial=0.0) + 1.0), z)
-    if np.count_nonzero(d) < 2:
-        return None
-    return float(stats.wilcoxon(d, zero_method="wilcox", alternative="two-sided").pvalue)

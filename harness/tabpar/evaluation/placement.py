@@ -19,6 +19,8 @@ import pandas as pd
 from tabpar.common.errors import UserError
 from tabpar.leaderboards.store import Leaderboard, load_leaderboard
 from tabpar.common.metrics import get_metric
+from tabpar.evaluation.stats import (bootstrap_scores, competition_rank, half_width,
+                                     percentile_of, share_below)
 from tabpar.evaluation.reference import Reference
 from tabpar.execution.runner import load_arrays, prepare_task
 from tabpar.data.sources import read_table
@@ -28,40 +30,6 @@ from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
 VERDICTS = ("worse-than-naive", "below-baseline", "at-baseline", "above-baseline")
 DEFAULT_TOLERANCE = 0.05
-N_BOOTSTRAP = 1000
-
-
-def bootstrap_scores(metric, y, predictions: list, n_boot: int = N_BOOTSTRAP,
-                     seed: int = 0) -> np.ndarray:
-    """(n_boot, len(predictions)) scores on the same resamples of the holdout rows (paired)."""
-    rng = np.random.default_rng(seed)
-    n = len(y)
-    out = np.empty((n_boot, len(predictions)))
-    for b in range(n_boot):
-        counts = np.bincount(rng.integers(0, n, n), minlength=n)
-        for j, p in enumerate(predictions):
-            out[b, j] = metric(y, p, counts)
-    return out
-
-
-def half_width(values: np.ndarray) -> float:
-    """Half the width of the central 95% interval (percentile method)."""
-    values = np.asarray(values, float)
-    values = values[np.isfinite(values)]
-    lo, hi = np.percentile(values, [2.5, 97.5])
-    return float((hi - lo) / 2)
-
-
-def percentile_of(metric, score: float, reference_scores) -> float:
-    """Share (0–100) of reference scores that ``score`` beats; ties count half."""
-    gains = metric.gain(score, np.asarray(reference_scores, float))
-    return float(100.0 * (np.sum(gains > 0) + 0.5 * np.sum(gains == 0)) / len(gains))
-
-
-def competition_rank(metric, score: float, reference_scores) -> int:
-    """1-based rank of ``score`` among the reference plus itself; equal scores share a rank."""
-    gains = metric.gain(np.asarray(reference_scores, float), score)
-    return int(1 + np.sum(gains > 0))
 
 
 LEADERBOARD_KEYS = ("leaderboard_rank", "leaderboard_size", "top_percent",
@@ -310,15 +278,6 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
     return placement
 
 
-def difficulty_percentile(difficulty: float, others) -> float | None:
-    """Share (0–100) of ``others`` that ``difficulty`` exceeds, ties half (higher = harder)."""
-    others = np.asarray(list(others), float)
-    if not len(others):
-        return None
-    return float(100.0 * (np.sum(others < difficulty) + 0.5 * np.sum(others == difficulty))
-                 / len(others))
-
-
 def place_task(definition: Task, ref: Reference, score: float | None = None,
                predictions: str | Path | None = None, tolerance: float = DEFAULT_TOLERANCE,
                force: bool = False, difficulties: dict | None = None) -> Placement:
@@ -383,7 +342,7 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     runs = [s for m in tref.scores for s in tref.scores[m]]
     if difficulties is None:
         difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
-    difficulty_pct = difficulty_percentile(tref.difficulty, difficulties.values())
+    difficulty_pct = share_below(tref.difficulty, difficulties.values())
     message = _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance)
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,

@@ -8,7 +8,8 @@ import pytest
 from scipy import stats
 
 from tabpar.cli.main import main
-from tabpar.evaluation.comparison import _signed_rank_p, _task_delta, compare, holm
+from tabpar.evaluation.comparison import _task_delta, compare
+from tabpar.evaluation.stats import holm, signed_rank_p
 from tabpar.common.metrics import METRICS
 from tabpar.testing import assert_no_regression
 
@@ -30,9 +31,9 @@ def test_holm_matches_its_definition():
 def test_signed_rank_p_is_scipy_wilcoxon():
     deltas = np.array([-0.2, -0.1, -0.15, 0.01, -0.3, -0.05, -0.12])  # synthetic
     # reference: scipy.stats.wilcoxon, two-sided
-    assert _signed_rank_p(deltas, 0.0) == pytest.approx(stats.wilcoxon(deltas).pvalue)
+    assert signed_rank_p(deltas, 0.0) == pytest.approx(stats.wilcoxon(deltas).pvalue)
     # deltas under the tolerance count as zero and are dropped
-    assert _signed_rank_p(deltas, 0.02) == pytest.approx(
+    assert signed_rank_p(deltas, 0.02) == pytest.approx(
         stats.wilcoxon(np.delete(deltas, 3)).pvalue)
 
 
@@ -40,9 +41,9 @@ def test_signed_rank_p_on_standardised_deltas_is_scipy_wilcoxon():
     deltas = np.array([-0.18, 0.002, -0.005, -0.0025, -0.016, 0.0003, -0.07, -0.02])  # synthetic
     se = np.array([0.2, 0.004, 0.005, 0.02, 0.012, 0.001, 0.15, 0.018])
     # reference: scipy.stats.wilcoxon on delta / se
-    assert _signed_rank_p(deltas, 0.0, se) == pytest.approx(stats.wilcoxon(deltas / se).pvalue)
+    assert signed_rank_p(deltas, 0.0, se) == pytest.approx(stats.wilcoxon(deltas / se).pvalue)
     # a task without noise and no change counts as a zero (dropped), not as a NaN
-    with_exact = _signed_rank_p(np.append(deltas, 0.0), 0.0, np.append(se, 0.0))
+    with_exact = signed_rank_p(np.append(deltas, 0.0), 0.0, np.append(se, 0.0))
     assert with_exact == pytest.approx(stats.wilcoxon(deltas / se).pvalue)
 
 

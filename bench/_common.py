@@ -15,7 +15,8 @@ def best_of(function, repeats=3):
 
 
 def machine() -> str:
-    from tabpar.execution.runner import available_cores, library_versions
+    from tabpar.common.system import available_cores
+    from tabpar.execution.provenance import library_versions
 
     try:
         with open("/proc/meminfo") as handle:

@@ -85,7 +85,7 @@ def main() -> int:
     parser.add_argument("--keep", action="store_true", help="keep the output folder")
     args = parser.parse_args()
 
-    from tabpar.execution.runner import library_versions
+    from tabpar.execution.provenance import library_versions
 
     work = Path(tempfile.mkdtemp(prefix="tabpar-bench-calibrate-"))
     data = work / "synthetic.parquet"

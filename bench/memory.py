@@ -20,7 +20,7 @@ PREPARE = """
 import os, tempfile
 HWM
 os.environ["TABPAR_CACHE"] = tempfile.mkdtemp()
-from tabpar.execution.runner import prepare_task
+from tabpar.execution.cache import prepare_task
 from tabpar.data.suites import load_suite
 prepare_task(load_suite("default").task("flights"))
 print(_hwm())

@@ -29,7 +29,9 @@ def main():
     os.environ["TABPAR_CACHE"] = tempfile.mkdtemp(prefix="tabpar-bench-cache-")
     from threadpoolctl import threadpool_limits
 
-    from tabpar.execution.runner import available_cores, load_arrays, prepare_task, run_suite
+    from tabpar.common.system import available_cores
+    from tabpar.execution.cache import load_arrays, prepare_task
+    from tabpar.execution.runner import run_suite
     from tabpar.data.suites import load_suite
     from tabpar.models.zoo import MODELS, build_model
 

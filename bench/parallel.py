@@ -23,7 +23,9 @@ def main():
     parser = argparse.ArgumentParser()
     parser.add_argument("--seeds", type=int, default=3)
     args = parser.parse_args()
-    from tabpar.execution.runner import available_cores, prepare_task, run_suite
+    from tabpar.common.system import available_cores
+    from tabpar.execution.cache import prepare_task
+    from tabpar.execution.runner import run_suite
     from tabpar.data.suites import load_suite
 
     for task in load_suite("quick").tasks:

@@ -19,7 +19,8 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _common import best_of, machine  # noqa: E402
 
-from tabpar.procedure.baseline import BaselinePrep, sklearn_equivalent  # noqa: E402
+from tabpar.procedure.baseline import BaselinePrep
+from tabpar.procedure.equivalent import sklearn_equivalent  # noqa: E402
 from tabpar.data.sources import load_task  # noqa: E402
 from tabpar.data.suites import load_suite  # noqa: E402
 

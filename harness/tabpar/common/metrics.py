@@ -13,6 +13,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
+
 from tabpar.common.errors import UserError
 
 _EPS = np.finfo(np.float64).eps  # the clip sklearn.metrics.log_loss applies

@@ -8,14 +8,16 @@ from __future__ import annotations
 
 import io
 import json
+from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 
 from tabpar.common.errors import UserError
-from tabpar.data.sources import LoadedTask, load_task
-from tabpar.data.split import Split, encode_target, split_rows
 from tabpar.common.files import atomic_write_bytes, atomic_write_text
+from tabpar.common.text import html_table
+from tabpar.data.sources import LoadedTask
+from tabpar.data.split import Split, load_and_split
 from tabpar.data.suites import Task
 
 FORMATS = ("csv", "parquet")
@@ -86,6 +88,62 @@ def export_task(task: Task, out: str | Path, fmt: str = "csv") -> dict:
     """Export ``task``'s split to ``out``; returns the task.json description."""
     if fmt not in FORMATS:
         raise UserError(f"Unknown export format '{fmt}'; use csv or parquet.")
-    loaded = load_task(task)
-    split = split_rows(loaded, encode_target(loaded))
-    return write_split(Path(out), loaded, split, fmt, describe(task, loaded, split, fmt))
+    rows = load_and_split(task)
+    return write_split(Path(out), rows.loaded, rows.split, fmt,
+                       describe(task, rows.loaded, rows.split, fmt))
+
+
+@dataclass
+class ExportedSplit:
+    """What ``export`` wrote: the folder and the task.json description of the split."""
+
+    folder: Path
+    description: dict
+
+    def to_dict(self) -> dict:
+        return {"folder": str(self.folder), **self.description}
+
+    def __str__(self) -> str:
+        d, folder = self.description, self.folder
+        return (f"wrote {folder}/{d['files']['train']} ({d['n_train']:,} rows with target), "
+                f"{folder}/{d['files']['holdout']} ({d['n_holdout']:,} rows without) and "
+                f"task.json\n{d['metric']} ({'lower' if d['lower_is_better'] else 'higher'} is "
+                f"better); {d['how_to_submit']}")
+
+    def _repr_html_(self) -> str:
+        return html_table({k: v for k, v in self.to_dict().items() if k != "files"},
+                          caption=f"exported split of {self.description.get('task', '')}")
+
+
+def export(task: str | Task, out: str | Path, suite: str | Path = "default",
+           fmt: str = "csv") -> ExportedSplit:
+    """Write a suite task's exact split: ``train`` (with the target), ``holdout`` (without)
+    and ``task.json`` (metric, direction, how to submit predictions).
+
+    Parameters
+    ----------
+    task : str or Task
+        A task name of ``suite``, or a Task.
+    out : path
+        The folder to write (created if needed).
+    suite : str or path
+        A built-in suite name (``default``, ``quick``) or a suite file.
+    fmt : {"csv", "parquet"}
+
+    Returns
+    -------
+    ExportedSplit
+        The folder and the description written to task.json.
+
+    Examples
+    --------
+    >>> import tempfile, tabpar
+    >>> split = tabpar.export("diamonds", tempfile.mkdtemp(), suite="quick")
+    >>> split.description["n_holdout"], split.description["metric"]
+    (600, 'rmsle')
+    """
+    if not isinstance(task, Task):
+        from tabpar.data.suites import load_suite
+
+        task = load_suite(suite).task(task)
+    return ExportedSplit(folder=Path(out), description=export_task(task, out, fmt))

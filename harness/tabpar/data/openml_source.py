@@ -24,7 +24,6 @@ from __future__ import annotations
 import inspect
 import json
 import os
-import shutil
 import socket
 import threading
 import urllib.parse

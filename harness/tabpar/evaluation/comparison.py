@@ -20,19 +20,28 @@ from datetime import datetime
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 from scipy import stats
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
-from tabpar.evaluation.stats import bootstrap_scores, holm, signed_rank_p
-from tabpar.procedure.variants import builtin, resolve_procedure
-from tabpar.evaluation.reference import check_format, published_root
-from tabpar.execution.runner import (library_versions, load_arrays, preparation_code_digest, prepare_task,
-                     run_suite)
-from tabpar.execution.store import (RUN_FILE, ResultsStore, align_to, atomic_write_text, load_results,
-                    read_predictions)
+from tabpar.common.text import html_table
 from tabpar.data.suites import Task, load_suite
+from tabpar.evaluation.reference import check_format, published_root
+from tabpar.evaluation.stats import bootstrap_scores, holm, signed_rank_p
+from tabpar.execution.cache import load_arrays, prepare_task
+from tabpar.execution.provenance import library_versions, preparation_code_digest
+from tabpar.execution.runner import run_suite
+from tabpar.execution.store import (
+    RUN_FILE,
+    ResultsStore,
+    align_to,
+    atomic_write_text,
+    load_results,
+    read_predictions,
+)
 from tabpar.models.zoo import check_models
+from tabpar.procedure.variants import builtin, resolve_procedure
 
 AA_SEED_OFFSET = 1000
 DEFAULT_MODELS = ("rf", "lgbm")
@@ -88,6 +97,16 @@ class Comparison:
         d = asdict(self)
         d["passed"] = self.passed
         return d
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per task: delta (positive = the candidate is better), its 95% band, p-values
+        and the call."""
+        return pd.DataFrame([asdict(t) for t in self.tasks])
+
+    def _repr_html_(self) -> str:
+        summary = {k: v for k, v in self.to_dict().items() if k != "tasks"}
+        return (html_table(summary, caption=f"{self.candidate} vs {self.baseline}")
+                + self.to_frame().to_html(index=False, escape=True))
 
     def __str__(self) -> str:
         head = (f"compare {self.candidate} against {self.baseline} on suite '{self.suite}'"

@@ -17,107 +17,25 @@ import numpy as np
 import pandas as pd
 
 from tabpar.common.errors import UserError
-from tabpar.leaderboards.store import Leaderboard, load_leaderboard
 from tabpar.common.metrics import get_metric
-from tabpar.evaluation.stats import (bootstrap_scores, competition_rank, half_width,
-                                     percentile_of, share_below)
-from tabpar.evaluation.reference import Reference
-from tabpar.execution.runner import load_arrays, prepare_task
+from tabpar.common.text import format_number as fmt
+from tabpar.common.text import html_table
 from tabpar.data.sources import read_table
-from tabpar.execution.store import align_to
 from tabpar.data.suites import Task, load_suite
+from tabpar.evaluation.reference import Reference
+from tabpar.evaluation.stats import (
+    bootstrap_scores,
+    competition_rank,
+    half_width,
+    percentile_of,
+    share_below,
+)
+from tabpar.execution.cache import load_arrays, prepare_task
+from tabpar.execution.store import align_to
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
 VERDICTS = ("worse-than-naive", "below-baseline", "at-baseline", "above-baseline")
 DEFAULT_TOLERANCE = 0.05
-
-
-LEADERBOARD_KEYS = ("leaderboard_rank", "leaderboard_size", "top_percent",
-                    "leaderboard_percentile")
-
-
-def place_on_leaderboard(score: float, leaderboard: Leaderboard | str,
-                         store: str | Path | None = None) -> dict:
-    """Where ``score`` (in the leaderboard's units) would stand among a leaderboard's entries.
-
-    ``leaderboard``: a Leaderboard, or the name of a stored one (looked up in ``store``).
-    Returns a dict: ``leaderboard_rank`` (1 = best; the place the score would take among the
-    entries, equal scores sharing the better place, as in competition ranking),
-    ``leaderboard_size`` (the entries plus this score, so 1 <= rank <= size),
-    ``leaderboard_entries``, ``top_percent`` (rank / size x 100; smaller is better),
-    ``leaderboard_percentile`` (share 0-100 of the entries the score beats, ties half; larger is
-    better), ``leaderboard_best`` (the best entry), and ``leaderboard_note`` (what the numbers
-    cannot say).
-    """
-    board = (leaderboard if isinstance(leaderboard, Leaderboard)
-             else load_leaderboard(leaderboard, store))
-    if score is None or not np.isfinite(score):
-        raise UserError(f"The score {score!r} is not a finite number; give your holdout score "
-                        f"in the task's metric.")
-    score = float(score)
-    entries = board.scores
-    # a Leaderboard has the direction-normalised gain these helpers need from a metric
-    rank = competition_rank(board, score, entries)
-    size = len(entries) + 1
-    notes = []
-    if board.kind == "openml":
-        procedure = (board.meta.get("openml_task") or {}).get("estimation_procedure")
-        procedure = procedure or "the task's own estimation procedure"
-        notes.append(f"entries are OpenML run evaluations ({procedure}, over the whole "
-                     f"dataset), not scores on the same holdout as yours, so the rank is "
-                     f"indicative, not a like-for-like comparison")
-        # OpenML's multiclass AUC is a class-frequency-weighted average (from memory)
-        if board.metric == "roc_auc" and (board.meta.get("openml_task") or {}).get(
-                "type") == "multiclass":
-            notes.append("OpenML averages a multiclass AUC over classes differently from "
-                         "tabpar's macro one-vs-rest")
-    elif board.metric is None:
-        notes.append(f"the leaderboard does not record its metric (only that "
-                     f"{'lower' if board.lower_is_better else 'higher'} is better); the rank "
-                     f"means something only for a score in the same metric on the same rows")
-    else:
-        notes.append("the leaderboard does not record the rows its entries were scored on; "
-                     "the rank compares like with like only if they are the same holdout")
-    if size <= 20:
-        notes.append(f"with {len(entries)} entries one place moves top_percent by "
-                     f"{100 / size:.0f} points")
-    return {
-        "leaderboard": board.name, "leaderboard_task": board.task,
-        "leaderboard_rank": rank, "leaderboard_size": size,
-        "leaderboard_entries": len(entries), "top_percent": 100.0 * rank / size,
-        "leaderboard_percentile": percentile_of(board, score, entries),
-        "leaderboard_best": board.best, "leaderboard_lower_is_better": board.lower_is_better,
-        "leaderboard_note": "; ".join(notes),
-    }
-
-
-def leaderboard_lines(numbers: dict) -> list[str]:
-    """``place_on_leaderboard``'s answer as indented text lines."""
-    lines = [f"  leaderboard {numbers['leaderboard']}: rank {numbers['leaderboard_rank']} of "
-             f"{numbers['leaderboard_size']} (top {numbers['top_percent']:.1f}%) · beats "
-             f"{numbers['leaderboard_percentile']:.1f}% of its "
-             f"{numbers['leaderboard_entries']} entries (ties half) · best entry "
-             f"{numbers['leaderboard_best']:.4g}"]
-    if numbers.get("leaderboard_note"):
-        lines.append(f"  leaderboard caution: {numbers['leaderboard_note']}")
-    return lines
-
-
-def _check_leaderboard_fits(board: Leaderboard, task, metric) -> None:
-    """UserError unless ``board`` ranks scores of suite task ``task`` in its metric."""
-    if board.task not in (task.name, task.source):
-        raise UserError(f"Leaderboard '{board.name}' is for task '{board.task}', not "
-                        f"'{task.name}'; choose a leaderboard of this task (tabpar leaderboard "
-                        f"list).")
-    if board.metric is not None and board.metric != metric.name:
-        raise UserError(f"Leaderboard '{board.name}' ranks {board.metric}, but task "
-                        f"'{task.name}' is scored on {metric.name}; choose a leaderboard in "
-                        f"{metric.name}.")
-    if board.lower_is_better != metric.lower_is_better:
-        raise UserError(f"Leaderboard '{board.name}' ranks scores where "
-                        f"{'lower' if board.lower_is_better else 'higher'} is better, but "
-                        f"task '{task.name}' is scored on {metric.name}; its scores are in "
-                        f"another metric.")
 
 
 @dataclass
@@ -149,9 +67,20 @@ class Placement:
     model_means: dict = field(default_factory=dict)
     reference_scores: dict = field(default_factory=dict)  # model → per-seed scores (for plots)
     extra: dict = field(default_factory=dict)  # added by other answers (e.g. a leaderboard)
+    extra_lines: list = field(default_factory=list, repr=False)  # their text, for __str__
+    extra_shown: set = field(default_factory=set, repr=False)  # keys extra_lines already show
+
+    def attach(self, numbers: dict, lines: list[str]) -> None:
+        """Add another answer's numbers (kept in ``extra``, merged by ``to_dict``) and the lines
+        that show them in ``__str__``."""
+        self.extra.update(numbers)
+        self.extra_lines.extend(lines)
+        self.extra_shown.update(numbers)
 
     def to_dict(self) -> dict:
         d = asdict(self)
+        d.pop("extra_lines")
+        d.pop("extra_shown")
         d.update(d.pop("extra"))
         return d
 
@@ -174,20 +103,23 @@ class Placement:
         ]
         if self.skill is None and self.skill_note:
             lines.append(f"  skill: {self.skill_note}")
-        extra = dict(self.extra)
-        if "leaderboard_rank" in extra:
-            lines.extend(leaderboard_lines(extra))
-            extra = {k: v for k, v in extra.items() if not k.startswith("leaderboard")
-                     and k != "top_percent"}
-        for key, value in extra.items():
-            lines.append(f"  {key}: {value}")
+        lines.extend(self.extra_lines)
+        for key, value in self.extra.items():
+            if key not in self.extra_shown:
+                lines.append(f"  {key}: {value}")
         return "\n".join(lines)
 
+    def to_frame(self) -> pd.DataFrame:
+        """One row per reference run (model, seed, score), in the metric's units: the
+        distribution the score was placed against."""
+        return pd.DataFrame([{"task": self.task, "model": model, "seed_index": i, "score": v}
+                             for model, values in self.reference_scores.items()
+                             for i, v in enumerate(values)])
+
     def _repr_html_(self) -> str:
-        rows = "".join(f"<tr><th style='text-align:left'>{k}</th><td>{v}</td></tr>"
-                       for k, v in self.to_dict().items()
-                       if k not in ("reference_scores", "model_means"))
-        return f"<table>{rows}</table>"
+        return html_table({k: v for k, v in self.to_dict().items()
+                           if k not in ("reference_scores", "model_means")},
+                          caption=f"{self.task}: {self.verdict}")
 
 
 def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: str):
@@ -250,32 +182,28 @@ def _check_fingerprint(ref: Reference, name: str, fingerprint: str, force: bool)
                         f"reference); rebuild the reference, or pass --force to place anyway.")
 
 
-def place(task: str, score: float | None = None, predictions: str | Path | None = None,
-          suite: str | None = None, reference: str | Path = "default",
-          tolerance: float = DEFAULT_TOLERANCE, force: bool = False,
-          leaderboard: Leaderboard | str | None = None) -> Placement:
-    """Place a holdout score (or a predictions file, scored here) on a suite task.
+def reference_task(task: str, suite: str | None = None,
+                   reference: str | Path = "default") -> tuple[Reference, Task]:
+    """The reference at ``reference`` and the definition of its task ``task`` (from ``suite``,
+    default: the reference's own suite); UserError naming what is unknown."""
+    ref = Reference(reference)
+    ref.task(task)  # an unknown task is named against the reference's tasks
+    return ref, load_suite(suite or ref.suite).task(task)
 
-    ``leaderboard`` (a Leaderboard or a stored name): also place the score on it; the numbers of
-    ``place_on_leaderboard`` go into ``Placement.extra``.
+
+def place_on_reference(task: str, score: float | None = None,
+                       predictions: str | Path | None = None, suite: str | None = None,
+                       reference: str | Path = "default", tolerance: float = DEFAULT_TOLERANCE,
+                       force: bool = False) -> Placement:
+    """Place a holdout score (or a predictions file, scored here) on a suite task's reference.
+
+    See ``tabpar.place``, which also places on a leaderboard.
     """
     if (score is None) == (predictions is None):
         raise UserError("Give exactly one of --score and --predictions.")
-    ref = Reference(reference)
-    tref = ref.task(task)
-    metric = get_metric(tref.metric)
-    suite_obj = load_suite(suite or ref.suite)
-    definition = suite_obj.task(task)
-    board = None
-    if leaderboard is not None:  # checked before the slow part, so a mistake fails fast
-        board = (leaderboard if isinstance(leaderboard, Leaderboard)
-                 else load_leaderboard(leaderboard))
-        _check_leaderboard_fits(board, definition, metric)
-    placement = place_task(definition, ref, score=score, predictions=predictions,
-                           tolerance=tolerance, force=force)
-    if board is not None:
-        placement.extra.update(place_on_leaderboard(placement.score, board))
-    return placement
+    ref, definition = reference_task(task, suite, reference)
+    return place_task(definition, ref, score=score, predictions=predictions,
+                      tolerance=tolerance, force=force)
 
 
 def place_task(definition: Task, ref: Reference, score: float | None = None,
@@ -356,7 +284,6 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
 
 
 def _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance) -> str:
-    fmt = lambda v: f"{v:.4g}"  # noqa: E731
     if verdict == "worse-than-naive":
         floor = "the mean" if "regression" in metric.task_types else "the class prior"
         return (f"Worse than predicting {floor} ({fmt(tref.naive)}) by more than the noise (±{noise:.3g}): look for a bug "

@@ -17,10 +17,17 @@ import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
-from tabpar.execution.runner import available_cores, library_versions, run_suite
-from tabpar.execution.store import (RUN_FILE, STORE_FORMAT, atomic_write_text, load_results,
-                    read_predictions)
-from tabpar.common.paths import builtin_folder
+from tabpar.common.paths import builtin_folder, refuse_inside_package
+from tabpar.common.system import available_cores
+from tabpar.execution.provenance import library_versions
+from tabpar.execution.runner import run_suite
+from tabpar.execution.store import (
+    RUN_FILE,
+    STORE_FORMAT,
+    atomic_write_text,
+    load_results,
+    read_predictions,
+)
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
 
@@ -154,9 +161,15 @@ def build_reference(suite: str = "default", out: str | Path | None = None, seeds
                     workers: int | None = None, progress: bool = False, command: str = ""):
     """Run every model of the zoo × ``seeds`` on ``suite`` into ``out`` and write provenance.
 
-    Default ``out``: ``results/reference/SUITE``. Returns the RunResult.
+    ``out`` is required and must lie outside the installed package (the published references
+    in a checkout are rebuilt with ``--out results/reference/SUITE``). Resumable: finished
+    jobs in ``out`` are kept. Returns the RunResult.
     """
-    out = Path(out) if out is not None else published_root() / "reference" / str(suite)
+    if out is None:
+        raise UserError("Say where to write the reference with --out DIR (in a checkout, "
+                        "results/reference/SUITE rebuilds a published one).")
+    refuse_inside_package(out, "The reference folder")
+    out = Path(out)
     result = run_suite(suite=suite, seeds=seeds, out=out, workers=workers, progress=progress)
     frame = load_results(out)
     provenance = {

@@ -15,6 +15,8 @@ import time
 from multiprocessing import get_context
 from multiprocessing.connection import wait
 
+from tabpar.common.errors import UserError
+
 _CONTEXT = get_context("spawn")
 
 
@@ -196,3 +198,31 @@ class DaskPool:
             raise
         finally:
             client.close()
+
+
+def connect_check(scheduler: str | None, executor: str, job_timeout) -> None:
+    """UserError for a dask executor that cannot work as asked, before any job starts."""
+    if executor not in ("local", "dask"):
+        raise UserError(f"Unknown executor '{executor}'; use local or dask.")
+    if executor == "local":
+        if scheduler:
+            raise UserError("--scheduler needs --executor dask.")
+        return
+    if not scheduler:
+        raise UserError("--executor dask needs --scheduler tcp://HOST:PORT, the address of a "
+                        "running Dask scheduler.")
+    if job_timeout is not None:
+        raise UserError("--job-timeout works with the local executor only (a Dask worker "
+                        "cannot stop one running job); leave it out with --executor dask.")
+    try:
+        import distributed  # noqa: F401
+    except ImportError:
+        raise UserError("--executor dask needs the 'distributed' package: pip install "
+                        "'tabpar[dask]'.") from None
+    from distributed import Client
+
+    try:
+        Client(scheduler, timeout=10, set_as_default=False).close()
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise UserError(f"Cannot reach the Dask scheduler at {scheduler} ({exc.__class__.__name__}); "
+                        f"start one with 'dask scheduler' or check the address.") from None

@@ -66,7 +66,10 @@ def _et(task_type, seed, threads):
 
 def _hgb(task_type, seed, threads):
     # threads: set by the runner through threadpoolctl (HGB has no n_jobs parameter)
-    from sklearn.ensemble import HistGradientBoostingClassifier, HistGradientBoostingRegressor
+    from sklearn.ensemble import (
+        HistGradientBoostingClassifier,
+        HistGradientBoostingRegressor,
+    )
 
     cls = (HistGradientBoostingRegressor if task_type == "regression"
            else HistGradientBoostingClassifier)

@@ -1,14 +1,8 @@
-"""The baseline procedure: a scikit-learn transformer fitted on training rows only.
-
-- date columns → calendar fields (year, month, ISO week, day, day of week, day of year, month /
-  quarter / year start and end flags, elapsed days since 1970-01-01);
-- other non-numeric columns → integer codes learned on the training rows: 1..K in sorted order
-  (or the given level order for ordinal columns); missing and unseen values → 0;
-- numeric columns → as they are, gaps filled with the training median, plus a 0/1 missing flag
-  for each column that had gaps in the training rows (as SimpleImputer(add_indicator=True)).
-
-Nothing else. Output is a float32 array (what the tree libraries use internally), in
-column-major order.
+"""The baseline procedure, ``BaselinePrep``: a scikit-learn transformer fitted on training
+rows only. Dates become calendar fields (``tabpar.procedure.calendar``), other non-numeric
+columns integer codes (missing and unseen → 0), numeric gaps the training median plus a 0/1
+missing flag. Nothing else; the output is a float32 array (what the tree libraries use
+internally), in column-major order.
 
 The switches ``calendar``, ``missing_flags``, ``fill`` and ``one_hot_max_levels`` exist for
 variants that ``tabpar compare`` tests against the built-in procedure; their defaults are the
@@ -22,35 +16,9 @@ from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.utils.validation import check_is_fitted
 
 from tabpar.data.sources import to_datetimes
+from tabpar.procedure.calendar import CALENDAR_FIELDS, distinct_date_fields
 
-CALENDAR_FIELDS = ("year", "month", "week", "day", "day_of_week", "day_of_year", "is_month_start",
-                   "is_month_end", "is_quarter_start", "is_quarter_end", "is_year_start",
-                   "is_year_end", "elapsed_days")
 MISSING_SUFFIX = "__missing"
-
-
-def calendar_fields(dates: pd.Series) -> np.ndarray:
-    """(n, 13) float64 array of CALENDAR_FIELDS; NaN where the date is missing.
-
-    Time-zone-aware dates give fields in their own zone; ``week`` is the ISO 8601 week number;
-    ``day_of_week`` is 0 = Monday; ``elapsed_days`` counts days (fractional) since the Unix epoch.
-    """
-    accessor = dates.dt
-    out = np.empty((len(dates), len(CALENDAR_FIELDS)), dtype=np.float64)
-    for j, name in enumerate(CALENDAR_FIELDS):
-        if name == "week":
-            values = accessor.isocalendar()["week"]
-        elif name == "elapsed_days":
-            epoch = pd.Timestamp("1970-01-01", tz="UTC" if accessor.tz is not None else None)
-            values = (dates - epoch) / pd.Timedelta(days=1)
-        else:
-            values = getattr(accessor, name)
-        if values.dtype == bool:
-            out[:, j] = values.to_numpy()
-            out[dates.isna().to_numpy(), j] = np.nan
-        else:
-            out[:, j] = values.to_numpy(dtype=np.float64, na_value=np.nan)
-    return out
 
 
 def _sorted_levels(values) -> list:
@@ -74,16 +42,6 @@ def median_from_counts(values: np.ndarray, counts: np.ndarray) -> float:
     lower = values[np.searchsorted(ends, (total - 1) // 2, side="right")]
     upper = values[np.searchsorted(ends, total // 2, side="right")]
     return float((lower + upper) / 2)
-
-
-def _date_fields(dates: pd.Series):
-    """(code of each row's distinct date, -1 if missing; calendar_fields of the distinct dates;
-    each distinct date's row count). Fields are worked out once per distinct date and only
-    spread to the rows when the output is written."""
-    codes, uniques = pd.factorize(dates, use_na_sentinel=True)
-    fields = calendar_fields(pd.Series(uniques))
-    counts = np.bincount(codes[codes >= 0], minlength=len(uniques))
-    return codes, fields, counts
 
 
 def _numeric(series: pd.Series) -> np.ndarray:
@@ -114,33 +72,100 @@ def _column_median(series: pd.Series, values: np.ndarray, gap: np.ndarray) -> fl
     return float(np.median(known)) if len(known) else float("nan")
 
 
-def _is_date(series: pd.Series) -> bool:
+def _text_names(X) -> bool:
+    """Whether ``X`` names its columns with text (as scikit-learn: else no feature_names_in_)."""
+    return isinstance(X, pd.DataFrame) and all(isinstance(c, str) for c in X.columns)
+
+
+def is_date_column(series: pd.Series) -> bool:
+    """Whether the procedure treats ``series`` as dates (a datetime dtype)."""
     return pd.api.types.is_datetime64_any_dtype(series)
 
 
-def _is_numeric(series: pd.Series) -> bool:
+def is_numeric_column(series: pd.Series) -> bool:
+    """Whether the procedure fills ``series`` with a median (numbers, not categoricals)."""
     return pd.api.types.is_numeric_dtype(series) and not isinstance(series.dtype,
                                                                      pd.CategoricalDtype)
 
 
 class BaselinePrep(TransformerMixin, BaseEstimator):
-    """The baseline procedure (see module docstring).
+    """The baseline procedure (see the module docstring), learned on the rows given to ``fit``.
 
     Parameters
     ----------
-    date_columns : list of str, optional
-        Columns to treat as dates even if stored as text; datetime columns are found anyway.
-    ordinal : dict of str → list, optional
-        Level order for ordinal columns: the first level gets code 1.
-    calendar : bool, default True
-        Expand dates into calendar fields; False drops date columns.
-    missing_flags : bool, default True
-        Add a 0/1 flag per column with gaps in the training rows.
-    fill : {"median", "mean"}, default "median"
-        Statistic of the training rows that fills numeric gaps.
-    one_hot_max_levels : int, default 0
-        Columns with at most this many training levels get one 0/1 column per level (missing
-        and unseen → all zeros) instead of an integer code; 0 = never.
+    date_columns : list of str, default=None
+        Columns to parse as dates when stored as text (text that is not a date becomes a
+        missing date); columns of datetime dtype are dates anyway.
+    ordinal : dict of str to list, default=None
+        Level order of ordinal columns, numeric ones too: the first level gets code 1, the next
+        2, and so on; values not listed get 0.
+    calendar : bool, default=True
+        Expand date columns into calendar fields; False drops date columns.
+    missing_flags : bool, default=True
+        Add a 0/1 flag (1 = missing) per numeric or date column with gaps in the training rows.
+    fill : {"median", "mean"}, default="median"
+        Training statistic that fills numeric gaps and, field by field, missing dates.
+    one_hot_max_levels : int, default=0
+        Non-numeric columns with at most this many training levels get one 0/1 column per level
+        (missing and unseen → all zeros) instead of an integer code; 0 = never.
+
+    Attributes
+    ----------
+    n_features_in_ : int
+        Number of columns seen in ``fit``.
+    feature_names_in_ : ndarray of shape (n_features_in_,), dtype object
+        Names of the columns seen in ``fit``; defined only when they are all text (an array's
+        columns are called x0, x1, ... in the other attributes).
+    roles_ : dict of column to str
+        What became of each input column, in input order: "date", "numeric", "category" (one
+        code), "one_hot" (a 0/1 column per level) or "dropped" (dates with ``calendar=False``).
+    categories_ : dict of column to pandas.Index
+        Levels of each "category" and "one_hot" column, in code order: level ``k`` (from 0)
+        gets code ``k + 1``.
+    fill_values_ : dict of column to float or ndarray of shape (len(CALENDAR_FIELDS),)
+        Training median (mean with ``fill="mean"``) that fills gaps: one number per numeric
+        column, one per calendar field (in that field's unit) per date column; 0 where the
+        training rows hold no value at all.
+    flagged_ : list of column
+        Columns with gaps in the training rows, which get a missing flag, in the flags' output
+        order; empty with ``missing_flags=False``.
+    feature_names_out_ : ndarray of shape (n_features_out,), dtype object
+        Output feature names, in output order: a numeric or category column keeps its name, a
+        date column gives ``COLUMN__FIELD`` for each calendar field, a one-hot column gives
+        ``COLUMN==LEVEL`` per level, and the flags are ``COLUMN__missing``.
+    feature_sources_ : ndarray of shape (n_features_out,), dtype object
+        Input column (as in ``roles_``) each output feature comes from, in output order; a
+        missing flag comes from the column it flags.
+
+    See Also
+    --------
+    tabpar.procedure.calendar.calendar_fields : The calendar fields of a date column.
+    sklearn.impute.SimpleImputer : With ``strategy="median", add_indicator=True``, the fill and
+        flags of numeric columns.
+    sklearn.preprocessing.OrdinalEncoder : With unknown and missing values encoded as -1, the
+        category codes less one.
+
+    Examples
+    --------
+    An invented frame: three days of a made-up bakery's sales, one count missing.
+
+    >>> import pandas as pd
+    >>> from tabpar.procedure.baseline import BaselinePrep
+    >>> sales = pd.DataFrame({
+    ...     "day": pd.to_datetime(["2021-01-03", "2021-01-04", "2021-01-05"]),
+    ...     "bread": ["rye", "spelt", None],
+    ...     "loaves_sold": [42.0, None, 35.0],
+    ... })
+    >>> prep = BaselinePrep().fit(sales)
+    >>> prep.roles_
+    {'day': 'date', 'bread': 'category', 'loaves_sold': 'numeric'}
+    >>> list(prep.feature_sources_[[0, -1]]), list(prep.get_feature_names_out()[-3:])
+    (['day', 'loaves_sold'], ['bread', 'loaves_sold', 'loaves_sold__missing'])
+    >>> out = prep.set_output(transform="pandas").transform(sales)
+    >>> out[["day__year", "day__iso_year", "day__iso_week", "day__iso_weekday"]].values.tolist()
+    [[2021.0, 2020.0, 53.0, 7.0], [2021.0, 2021.0, 1.0, 1.0], [2021.0, 2021.0, 1.0, 2.0]]
+    >>> out[["bread", "loaves_sold", "loaves_sold__missing"]].values.tolist()
+    [[1.0, 42.0, 0.0], [2.0, 38.5, 1.0], [0.0, 35.0, 0.0]]
     """
 
     def __init__(self, date_columns=None, ordinal=None, calendar=True, missing_flags=True,
@@ -152,13 +177,38 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
         self.fill = fill
         self.one_hot_max_levels = one_hot_max_levels
 
+    def _check_params(self):
+        """ValueError naming the parameter that holds a value ``fit`` cannot use."""
+        def bad(name, wanted):
+            return ValueError(f"{name} must be {wanted}, not {getattr(self, name)!r}")
+
+        def listlike(value):
+            return np.iterable(value) and not isinstance(value, (str, bytes, dict))
+
+        if self.date_columns is not None and not listlike(self.date_columns):
+            raise bad("date_columns", "a list of column names or None")
+        if self.ordinal is not None and not hasattr(self.ordinal, "items"):
+            raise bad("ordinal", "a dict of column name to level list, or None")
+        for col, levels in (self.ordinal or {}).items():
+            if not listlike(levels) or len(set(levels)) < len(levels):  # one level per code
+                raise ValueError(f"ordinal[{col!r}] must be a list of distinct levels, not "
+                                 f"{levels!r}")
+        for name in ("calendar", "missing_flags"):
+            if not isinstance(getattr(self, name), (bool, np.bool_)):
+                raise bad(name, "True or False")
+        if not (isinstance(self.fill, str) and self.fill in ("median", "mean")):
+            raise bad("fill", "'median' or 'mean'")
+        n = self.one_hot_max_levels
+        if isinstance(n, (bool, np.bool_)) or not isinstance(n, (int, np.integer)) or n < 0:
+            raise bad("one_hot_max_levels", "an integer >= 0")
+
     def _frame(self, X) -> pd.DataFrame:
         if not isinstance(X, pd.DataFrame):
             X = pd.DataFrame(X)
             X.columns = [f"x{i}" for i in range(X.shape[1])]
         dates = set(self.date_columns or ())
         for col in dates & set(X.columns):
-            if not _is_date(X[col]):
+            if not is_date_column(X[col]):
                 # unparseable text becomes a missing date (the loaders reject it with a message)
                 X = X.assign(**{col: to_datetimes(X[col])[0]})
         return X
@@ -168,17 +218,36 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
     # alone and spread to the rows by indexing, which is what makes this fast on large frames.
 
     def fit(self, X, y=None):
-        """Learn codes, medians and which columns get missing flags, from these rows only."""
-        self._learn(self._frame(X))
+        """Learn codes, fill values and which columns get missing flags, from ``X`` only.
+
+        Parameters
+        ----------
+        X : pandas.DataFrame of shape (n_samples, n_features)
+            Training rows (an array is read as a frame with columns x0, x1, ...).
+        y : ignored
+
+        Returns
+        -------
+        self : BaselinePrep
+        """
+        self._check_params()
+        self._learn(self._frame(X), _text_names(X))
         return self
 
     def fit_transform(self, X, y=None, **fit_params):
-        """``fit(X).transform(X)`` sharing the per-column work between the two."""
-        X = self._frame(X)
-        return self._encode(X, self._learn(X))
+        """``fit(X).transform(X)``, sharing the per-column work between the two."""
+        self._check_params()
+        named, X = _text_names(X), self._frame(X)
+        return self._encode(X, self._learn(X, named))
 
     def transform(self, X):
-        """Float32 array (n_rows, len(get_feature_names_out())) of prepared features."""
+        """The prepared features of ``X`` (holding every column seen in ``fit``; others are
+        ignored), with what ``fit`` learned.
+
+        Returns
+        -------
+        ndarray of shape (n_samples, len(feature_names_out_)), dtype float32
+        """
         check_is_fitted(self, "feature_names_out_")
         X = self._frame(X)
         missing_cols = [c for c, r in self.roles_.items() if c not in X.columns and
@@ -187,22 +256,23 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
             raise ValueError(f"columns seen in fit are missing: {missing_cols[:5]}")
         return self._encode(X, {})
 
-    def _learn(self, X: pd.DataFrame) -> dict:
-        if self.fill not in ("median", "mean"):
-            raise ValueError(f"fill must be 'median' or 'mean', not {self.fill!r}")
-        self.feature_names_in_ = np.asarray([str(c) for c in X.columns], dtype=object)
+    def _learn(self, X: pd.DataFrame, named: bool) -> dict:
         self.n_features_in_ = X.shape[1]
+        if named:
+            self.feature_names_in_ = np.asarray(X.columns, dtype=object)
+        elif hasattr(self, "feature_names_in_"):  # from an earlier fit on named columns
+            del self.feature_names_in_
         ordinal = dict(self.ordinal or {})
-        self.roles_, self.categories_, self.medians_, self.flagged_ = {}, {}, {}, []
-        names, work = [], {}
+        self.roles_, self.categories_, self.fill_values_, self.flagged_ = {}, {}, {}, []
+        names, sources, work = [], [], {}
         for col in X.columns:
             series = X[col]
-            if _is_date(series) and not self.calendar:
+            if is_date_column(series) and not self.calendar:
                 self.roles_[col] = "dropped"
                 continue
-            if _is_date(series):
+            if is_date_column(series):
                 self.roles_[col] = "date"
-                codes, distinct, counts = _date_fields(series)
+                codes, distinct, counts = distinct_date_fields(series)
                 work[col] = (codes, distinct)
                 gaps = bool(counts.sum() < len(series))
                 if self.fill == "median":
@@ -210,16 +280,16 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                             for k in range(distinct.shape[1])]
                 else:
                     stat = (counts @ distinct) / max(counts.sum(), 1)
-                self.medians_[col] = np.nan_to_num(np.asarray(stat, float), nan=0.0)
+                self.fill_values_[col] = np.nan_to_num(np.asarray(stat, float), nan=0.0)
                 names += [f"{col}__{f}" for f in CALENDAR_FIELDS]
-            elif _is_numeric(series) and col not in ordinal:
+            elif is_numeric_column(series) and col not in ordinal:
                 self.roles_[col] = "numeric"
                 values = _numeric(series)
                 gap = np.isnan(values) if values.dtype.kind == "f" else np.zeros(len(values), bool)
                 gaps = bool(gap.any())
                 stat = (_column_median(series, values, gap) if self.fill == "median"
                         else float(np.nanmean(values)) if (~gap).any() else 0.0)
-                self.medians_[col] = 0.0 if np.isnan(stat) else stat
+                self.fill_values_[col] = 0.0 if np.isnan(stat) else stat
                 names.append(str(col))
             else:
                 gaps = False  # missing is its own code (0), no flag needed
@@ -239,10 +309,14 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 else:
                     self.roles_[col] = "category"
                     names.append(str(col))
+            sources += [col] * (len(names) - len(sources))  # this column's features
             if gaps and self.missing_flags:
                 self.flagged_.append(col)
         names += [f"{col}{MISSING_SUFFIX}" for col in self.flagged_]
+        sources += self.flagged_
         self.feature_names_out_ = np.asarray(names, dtype=object)
+        self.feature_sources_ = np.empty(len(sources), dtype=object)
+        self.feature_sources_[:] = sources  # element-wise: a tuple label stays one element
         return work
 
     def _encode(self, X: pd.DataFrame, work: dict) -> np.ndarray:
@@ -253,9 +327,9 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
             if role == "dropped":
                 continue
             if role == "date":
-                codes, distinct = work[col] if col in work else _date_fields(X[col])[:2]
+                codes, distinct = work[col] if col in work else distinct_date_fields(X[col])[:2]
                 # one row past the distinct dates holds the fill: missing dates (code -1) get it
-                table = np.vstack([distinct, self.medians_[col][None, :]]).astype(np.float32)
+                table = np.vstack([distinct, self.fill_values_[col][None, :]]).astype(np.float32)
                 for k in range(table.shape[1]):  # each output column written in one pass
                     np.take(np.ascontiguousarray(table[:, k]), codes, out=out[:, j + k])
                 j += table.shape[1]
@@ -266,7 +340,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 if values.dtype.kind == "f":
                     gap = np.isnan(values)
                     if gap.any():
-                        out[gap, j] = self.medians_[col]
+                        out[gap, j] = self.fill_values_[col]
                 else:
                     gap = None  # int and bool columns cannot have gaps
                 j += 1
@@ -296,49 +370,32 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
         return out
 
     def get_feature_names_out(self, input_features=None):
+        """Output feature names, in the order of the columns ``transform`` returns.
+
+        Parameters
+        ----------
+        input_features : array-like of str, default=None
+            Input column names; if given, they must equal ``feature_names_in_`` or, for columns
+            fitted without text names, replace x0, x1, ... in the output names.
+
+        Returns
+        -------
+        ndarray of shape (n_features_out,), dtype object
+            ``feature_names_out_``, with the given names for columns fitted without text names.
+        """
         check_is_fitted(self, "feature_names_out_")
-        return self.feature_names_out_.copy()
-
-
-def _plus_one(values):
-    return np.asarray(values, dtype=np.float64) + 1  # OrdinalEncoder's -1 (missing/unseen) → 0
-
-
-def _as_object(frame):
-    # OrdinalEncoder refuses pd.NA (pandas' nullable string dtype): give it NaN in object columns
-    return frame.astype(object).where(frame.notna(), np.nan)
-
-
-def _calendar_block(frame):
-    return np.hstack([calendar_fields(frame[c]) for c in frame.columns])
-
-
-def sklearn_equivalent(frame: pd.DataFrame, date_columns=()):
-    """The built-in procedure written with scikit-learn parts, for checks and benchmarks.
-
-    A ColumnTransformer of OrdinalEncoder (unknown and missing → -1, then +1) on text columns,
-    SimpleImputer(median, add_indicator=True) on numeric columns, and calendar_fields +
-    SimpleImputer(median) on date columns. It gives BaselinePrep's values (in another column
-    order) except the one missing flag per date column, which it lacks.
-    """
-    from sklearn.compose import ColumnTransformer
-    from sklearn.impute import SimpleImputer
-    from sklearn.pipeline import make_pipeline
-    from sklearn.preprocessing import FunctionTransformer, OrdinalEncoder
-
-    dates = [c for c in frame.columns if c in set(date_columns) or _is_date(frame[c])]
-    numeric = [c for c in frame.columns if c not in dates and _is_numeric(frame[c])]
-    text = [c for c in frame.columns if c not in dates and c not in numeric]
-    parts = []
-    if dates:
-        parts.append(("dates", make_pipeline(FunctionTransformer(_calendar_block),
-                                             SimpleImputer(strategy="median")), dates))
-    if text:
-        parts.append(("codes", make_pipeline(
-            FunctionTransformer(_as_object),
-            OrdinalEncoder(handle_unknown="use_encoded_value", unknown_value=-1,
-                           encoded_missing_value=-1),
-            FunctionTransformer(_plus_one)), text))
-    if numeric:
-        parts.append(("numeric", SimpleImputer(strategy="median", add_indicator=True), numeric))
-    return ColumnTransformer(parts, sparse_threshold=0.0)
+        if input_features is None:
+            return self.feature_names_out_.copy()
+        given = np.asarray(input_features, dtype=object)
+        known = getattr(self, "feature_names_in_", None)
+        # the opening words of both messages are those scikit-learn's estimator checks look for
+        if known is not None and not np.array_equal(given, known):
+            raise ValueError(f"input_features is not equal to feature_names_in_ "
+                             f"{list(known)}: got {list(given)}")
+        if len(given) != self.n_features_in_:
+            raise ValueError(f"input_features should have length equal to the number of "
+                             f"columns seen in fit ({self.n_features_in_}), not {len(given)}")
+        # columns fitted without text names (x0, x1, ... of an array) take the names given
+        rename = dict(zip(self.roles_, given))
+        return np.asarray([str(rename[src]) + name[len(str(src)):] for name, src in
+                           zip(self.feature_names_out_, self.feature_sources_)], dtype=object)

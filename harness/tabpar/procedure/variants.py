@@ -22,8 +22,8 @@ from pathlib import Path
 from typing import Callable
 
 from tabpar.common.errors import UserError
-from tabpar.procedure.baseline import BaselinePrep
 from tabpar.data.suites import Task, tomllib
+from tabpar.procedure.baseline import BaselinePrep
 
 BUILTIN = "builtin"
 VARIANT_KEYS = {"calendar": bool, "missing_flags": bool, "fill": str, "one_hot_max_levels": int}

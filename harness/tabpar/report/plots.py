@@ -1,4 +1,8 @@
-"""Comparison plots (matplotlib, Agg backend): PNG or SVG chosen by the file extension."""
+"""Comparison plots, in the manner of scikit-learn's Display objects: each function draws on the
+``ax`` it is given (or on a new Figure) and returns the Figure; nothing here saves a file except
+``save_figure`` or selects a matplotlib backend, so a notebook's or an application's own setup
+is never changed. Figures made here are ``matplotlib.figure.Figure`` objects, not pyplot ones:
+they need no backend to be drawn and saved, and are freed like any object.""" 
 from __future__ import annotations
 
 from pathlib import Path
@@ -16,16 +20,20 @@ PALETTE = {"naive": "#999999", "linear": "#CC79A7", "rf": "#009E73", "et": "#56B
 USER_COLOUR = "#000000"
 
 
-def _figure(width, height, **grid):
-    import matplotlib
+def new_axes(ax, width: float, height: float, **grid):
+    """``(figure, ax)``: the given axes and their figure, or a new Figure of ``width`` x
+    ``height`` inches with subplots laid out by ``grid`` (``Figure.subplots`` arguments)."""
+    if ax is not None:
+        return ax.figure, ax
+    from matplotlib.figure import Figure
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt.subplots(figsize=(width, height), dpi=120, **grid)
+    fig = Figure(figsize=(width, height), dpi=120)
+    return fig, fig.subplots(**grid)
 
 
-def _save(fig, path: Path) -> Path:
+def save_figure(fig, path) -> Path:
+    """Save ``fig`` as PNG or SVG (by the file's extension); UserError for another extension or
+    a path that cannot be written. Returns the path."""
     path = Path(path)
     if path.suffix.lower() not in (".png", ".svg"):
         raise UserError(f"Plot file {path} must end in .png or .svg.")
@@ -35,10 +43,6 @@ def _save(fig, path: Path) -> Path:
     except OSError as exc:
         raise UserError(f"Cannot write the plot {path} ({exc.strerror}); choose another "
                         f"path.") from None
-    finally:
-        import matplotlib.pyplot as plt
-
-        plt.close(fig)
     return path
 
 
@@ -46,18 +50,39 @@ def _direction(lower_is_better: bool) -> str:
     return "← better (lower)" if lower_is_better else "better (higher) →"
 
 
-def placement_plot(placement, path, leaderboard=None) -> Path:
-    """The task's reference scores per model (a point per seed), naive and best as lines, the
-    best default's noise band shaded, and the placed score marked. With a ``leaderboard`` (a
-    tabpar.leaderboards.store.Leaderboard), a second panel shows its entries as a ranked curve."""
+def placement_plot(placement, ax=None, leaderboard=None, leaderboard_ax=None):
+    """Draw a placed score against the task's reference.
+
+    Parameters
+    ----------
+    placement : Placement
+        The answer of ``tabpar.place`` (or of ``calibrate``).
+    ax : matplotlib Axes, optional
+        Where to draw the reference panel: each model's reference scores (a point per seed),
+        the naive floor and the best default as lines, the best default's noise band shaded,
+        the placed score marked. A new Figure when None.
+    leaderboard : Leaderboard, optional
+        Also draw its entries as a ranked curve with the score's rank, on ``leaderboard_ax``
+        (or on a second panel of the new Figure when ``ax`` is None).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure drawn on; save it with ``save_figure`` or ``fig.savefig``.
+    """
     models = [m for m in MODELS if m in placement.reference_scores]
     height = 0.55 * len(models) + 2.2
-    if leaderboard is None:
-        fig, ax = _figure(8, height)
+    if leaderboard is None or ax is not None:
+        fig, ax = new_axes(ax, 8, height)
     else:
-        fig, (ax, board_ax) = _figure(13.5, max(height, 4.0), ncols=2,
-                                      gridspec_kw={"width_ratios": [3, 2], "wspace": 0.3})
-        leaderboard_panel(board_ax, leaderboard, placement.score)
+        fig, (ax, leaderboard_ax) = new_axes(None, 13.5, max(height, 4.0), ncols=2,
+                                             gridspec_kw={"width_ratios": [3, 2],
+                                                          "wspace": 0.3})
+    if leaderboard is not None:
+        if leaderboard_ax is None:
+            raise ValueError("placement_plot needs leaderboard_ax when ax is given with a "
+                             "leaderboard.")
+        leaderboard_panel(leaderboard_ax, leaderboard, placement.score)
     rng = np.random.default_rng(0)
     for i, model in enumerate(models):
         scores = np.asarray(placement.reference_scores[model], float)
@@ -87,13 +112,13 @@ def placement_plot(placement, path, leaderboard=None) -> Path:
     ax.grid(axis="x", alpha=0.3)
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
               frameon=False)
-    return _save(fig, path)
+    return fig
 
 
 def leaderboard_panel(ax, leaderboard, score: float) -> None:
     """A leaderboard's entries as a ranked curve (rank 1 = best at the left), the placed score
     as a line across it and a marker at the rank it would take."""
-    from tabpar.evaluation.placement import place_on_leaderboard
+    from tabpar.leaderboards.placing import place_on_leaderboard
 
     ranked = leaderboard.ranked()
     where = place_on_leaderboard(score, leaderboard)
@@ -117,10 +142,24 @@ def leaderboard_panel(ax, leaderboard, score: float) -> None:
               frameon=False)
 
 
-def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> Path:
+def suite_plot(reference: Reference, overlay: Reference | None = None, ax=None):
     """Per task, the skill of each default ensemble; tasks ordered by difficulty (hardest at
-    the top). ``overlay``: a run folder of the same suite, its default ensembles drawn hollow
-    on the reference's scale (its naive floor and best default)."""
+    the top).
+
+    Parameters
+    ----------
+    reference : Reference
+        A published reference or results folder.
+    overlay : Reference, optional
+        A run folder of the same suite, its default ensembles drawn hollow on the reference's
+        scale (its naive floor and best default).
+    ax : matplotlib Axes, optional
+        Where to draw; a new Figure when None.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     table = model_skills(reference)
     table = table[table["model"].isin(DEFAULT_ENSEMBLES)]
     if table.empty:
@@ -136,7 +175,7 @@ def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> 
         extra = model_skills(overlay, against=reference)
         extra = extra[extra["model"].isin(DEFAULT_ENSEMBLES) & extra["task"].isin(table["task"])]
     order = table.groupby("task")["difficulty"].first().sort_values().index.tolist()
-    fig, ax = _figure(8.5, 0.5 * len(order) + 2.4)
+    fig, ax = new_axes(ax, 8.5, 0.5 * len(order) + 2.4)
     low = -0.5  # a model far below naive would squash every other point
     shown = pd.concat([table["skill"], extra["skill"]]) if extra is not None else table["skill"]
     left = max(low, min(-0.1, float(np.nanmin(shown)) - 0.05))
@@ -167,15 +206,28 @@ def suite_plot(reference: Reference, path, overlay: Reference | None = None) -> 
     ax.grid(axis="x", alpha=0.3)
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=4, fontsize=8,
               frameon=False)
-    return _save(fig, path)
+    return fig
 
 
-def forest_plot(comparison, path) -> Path:
-    """One row per task: delta and its 95% band, a zero line, wins/ties/losses in the title."""
+def forest_plot(comparison, ax=None):
+    """One row per task of a comparison: the delta and its 95% band, a zero line, the
+    tolerance shaded, wins/ties/losses in the title.
+
+    Parameters
+    ----------
+    comparison : Comparison
+        The answer of ``tabpar.compare``.
+    ax : matplotlib Axes, optional
+        Where to draw; a new Figure when None.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     rows = [t for t in comparison.tasks if t.delta is not None]
     if not rows:
         raise UserError("No task has a delta to plot (every task failed or had no scale).")
-    fig, ax = _figure(8, 0.45 * len(rows) + 2.2)
+    fig, ax = new_axes(ax, 8, 0.45 * len(rows) + 2.2)
     colours = {"better": "#009E73", "worse": "#D55E00", "same": "#666666"}
     for i, t in enumerate(rows):
         colour = colours.get(t.call, "#666666")
@@ -198,4 +250,4 @@ def forest_plot(comparison, path) -> Path:
                  f"{comparison.ties} · losses {comparison.losses} · {verdict}", fontsize=11)
     ax.grid(axis="x", alpha=0.3)
     ax.legend(loc="lower right", fontsize=8)
-    return _save(fig, path)
+    return fig

@@ -1,0 +1,158 @@
+"""Plain-text rendering of the API's results for the terminal (what the commands print)."""
+from __future__ import annotations
+
+from pathlib import Path
+
+from tabpar.common.metrics import get_metric
+from tabpar.models.zoo import DEFAULT_ENSEMBLES
+
+SHOWN_FAILURES = 8  # failed jobs listed under a run's tables
+
+
+def decimals(value: float) -> int:
+    """Decimals that show a score to about four significant digits."""
+    magnitude = abs(value)
+    return 0 if magnitude >= 1000 else 2 if magnitude >= 10 else 4
+
+
+def format_score(value, places: int | None = None) -> str:
+    """A score with thousands separators, '-' for none."""
+    if value is None:
+        return "-"
+    places = decimals(value) if places is None else places
+    return f"{value:,.{places}f}"
+
+
+def render_run(result) -> str:
+    """Plain-text tables, one per task: model, mean holdout score ± spread over seeds."""
+    lines = []
+    for name, info in result.tasks.items():
+        metric = get_metric(info["metric"])
+        direction = "lower is better" if metric.lower_is_better else "higher is better"
+        lines.append("")
+        lines.append(f"{name} — {info['metric']} ({direction}); {info['split']}")
+        for note in info["notes"]:
+            lines.append(f"  note: {note}")
+        lines.append(f"  {'model':<8} {'holdout':>22} {'train':>10} {'fit s':>8}  seeds")
+        ranked = sorted(info["models"].items(),
+                        key=lambda kv: kv[1]["mean"] * (1 if metric.lower_is_better else -1))
+        for model, s in ranked:
+            places = decimals(s["mean"])
+            spread = f" ± {format_score(s['std'], places)}" if s["n"] > 1 else ""
+            score = format_score(s["mean"], places) + spread
+            tag = "" if model in DEFAULT_ENSEMBLES else "  (" + ("floor" if model == "naive"
+                                                                else "linear") + ")"
+            lines.append(f"  {model:<8} {score:>22} {format_score(s['train_mean']):>10} "
+                         f"{s['fit_seconds']:>8.2f}  {s['n']}{tag}")
+    lines.append("")
+    lines.append(f"{result.jobs} jobs: {result.ok} ok, {result.failed} failed, "
+                 f"{result.reused} reused from an earlier run; results in {result.out}")
+    lines.append("± is the standard deviation over seeds (0 for models the seed does not "
+                 "change); the holdout band from finite rows comes with 'tabpar place'.")
+    if result.failed:
+        lines.append(f"{result.failed} jobs did not finish (a rerun with the same --out "
+                     f"retries them; details in {result.out}/jobs.jsonl):")
+        for row in result.failures[:SHOWN_FAILURES]:
+            lines.append(f"  {row['task']}/{row['model']} seed {row['seed']}: {row['status']} — "
+                         f"{row['error']}")
+        if len(result.failures) > SHOWN_FAILURES:
+            lines.append(f"  ... and {len(result.failures) - SHOWN_FAILURES} more")
+    if result.interrupted:
+        lines.append("Interrupted: every finished job is saved; run the same command again "
+                     "(same --out) to resume.")
+    return "\n".join(lines)
+
+
+def render_suite(suite, path) -> str:
+    """A suite's name and description, then one line per task."""
+    lines = [f"{suite.name}: {suite.description}  ({path})"]
+    for t in suite.tasks:
+        cap = f", at most {t.max_rows:,} rows" if t.max_rows else ""
+        lines.append(f"  {t.name:<12} {t.type:<10} {t.metric:<8} {t.source}; "
+                     f"{t.holdout.describe()}{cap}")
+    return "\n".join(lines)
+
+
+def _direction_and_submit(info: dict) -> str:
+    return (f"{info['metric']} ({'lower' if info['lower_is_better'] else 'higher'} is better); "
+            f"{info['how_to_submit']}")
+
+
+def render_export(info: dict, folder) -> str:
+    """What 'tabpar export' wrote (task.json's contents in ``info``)."""
+    return (f"wrote {folder}/{info['files']['train']} ({info['n_train']:,} rows with target), "
+            f"{folder}/{info['files']['holdout']} ({info['n_holdout']:,} rows without) and "
+            f"task.json\n" + _direction_and_submit(info))
+
+
+def render_split(info: dict, data, folder, inferred: str) -> str:
+    """What 'tabpar calibrate --export-split' inferred and wrote."""
+    folder = Path(folder)
+    return "\n".join([
+        f"inferred: {inferred}",
+        f"split: {info['holdout']}",
+        (f"wrote {folder / 'train.csv'} ({info['n_train']:,} rows with '{info['target']}'), "
+         f"{folder / 'holdout.csv'} ({info['n_holdout']:,} rows without) and task.json; row_id "
+         f"is each row's 0-based position in {data}"),
+        _direction_and_submit(info)])
+
+
+def board_line(board) -> str:
+    """One leaderboard in a line: name, task, entries, direction, best."""
+    metric = f" ({board.metric})" if board.metric else ""
+    return (f"leaderboard '{board.name}' for task {board.task}: {len(board.entries):,} "
+            f"entries, {'lower' if board.lower_is_better else 'higher'} is better{metric}, "
+            f"best {board.best:.4g}")
+
+
+def render_import(board, requested_name) -> str:
+    """What 'tabpar leaderboard import' stored."""
+    lines = [f"stored {board_line(board)}",
+             (f"  direction from {board.meta['direction_from']}; score column "
+              f"'{board.score_column}'; other columns kept as they are")]
+    if requested_name is not None and requested_name != board.name:
+        lines.append(f"  the name '{requested_name}' became '{board.name}' (letters, digits, "
+                     f"_ - . only)")
+    lines.append(f"  files: {board.path.with_suffix('.parquet')} and {board.path}")
+    return "\n".join(lines)
+
+
+def render_pull(best, every) -> str:
+    """What 'tabpar leaderboard pull-openml' fetched and stored."""
+    meta, source = best.meta, best.meta["source"]
+    dataset = meta["openml_task"].get("dataset_name")
+    when = (f"the server could not be reached, so these are the evaluations cached on "
+            f"{source['fetched_at']}" if source.get("from_cache")
+            else f"fetched {source['fetched_at']}")
+    lines = [(f"OpenML task {source['openml_task']}{f' ({dataset})' if dataset else ''}: "
+              f"{meta['n_runs']:,} runs of {meta['n_flows']:,} flows on {source['measure']}; "
+              f"{when}")]
+    if meta["n_runs_without_value"]:
+        lines.append(f"  {meta['n_runs_without_value']:,} runs without a value were left out")
+    lines.append(f"  stored {board_line(best)} (best run per flow)")
+    lines.append(f"  stored {board_line(every)} (all runs)")
+    lines.append(f"  in {best.path.parent}")
+    return "\n".join(lines)
+
+
+def render_leaderboard_list(rows: list[dict]) -> str:
+    """The stored and published leaderboards (at least one) as a table, then their folders."""
+    width = max(len(r["name"]) for r in rows)
+    lines = [f"{'name':<{width}}  {'task':<14} {'entries':>8}  direction (metric)            kind"]
+    for r in rows:
+        metric = f" ({r['metric']})" if r["metric"] else ""
+        kind = r["kind"] + (f", {r['view']}" if r["view"] else "")
+        lines.append(f"{r['name']:<{width}}  {r['task']:<14} {r['entries']:>8,}  "
+                     f"{r['direction'] + metric:<29} {kind}")
+    lines.extend(f"in {where}" for where in dict.fromkeys(r["where"] for r in rows))
+    return "\n".join(lines)
+
+
+def render_cache(info: dict, env: str) -> str:
+    """The prepared-array cache's entries and size."""
+    lines = [f"prepared-array cache: {info['folder']} (set {env} to move it)"]
+    for e in info["entries"]:
+        lines.append(f"  {e['entry']:<34} {e['procedure']:<20} {e['rows']:>9,} rows "
+                     f"{e['mb']:>8.1f} MB")
+    lines.append(f"  {len(info['entries'])} entries, {info['total_mb']:.1f} MB")
+    return "\n".join(lines)

@@ -1,0 +1,119 @@
+"""Jobs: one (task, model, seed) each, planned from prepared tasks and executed in any process
+(the calling one, a local worker, a Dask worker). A job is a plain dict so it crosses process
+boundaries; its result is the row the store records plus the holdout predictions."""
+from __future__ import annotations
+
+import time
+from datetime import datetime, timezone
+from functools import lru_cache
+
+import numpy as np
+
+from tabpar.common.metrics import get_metric
+from tabpar.common.system import release_freed_memory
+from tabpar.execution.cache import PreparedTask, load_arrays
+from tabpar.execution.provenance import preparation_code_digest
+from tabpar.models.predict import predict
+from tabpar.models.zoo import MODELS, build_model
+
+
+@lru_cache(maxsize=None)
+def _thread_pools(library: str):
+    """One threadpoolctl controller per process and model library: finding the loaded
+    BLAS/OpenMP libraries takes milliseconds, which every job would otherwise pay again. The
+    model's library is imported first, as its OpenMP runtime must be loaded to be found; a
+    process never imports a library none of its models uses (memory)."""
+    import importlib
+
+    from threadpoolctl import ThreadpoolController
+
+    importlib.import_module(library)
+    return ThreadpoolController()
+
+
+def warm_imports(models=None) -> None:
+    """Import the libraries of ``models`` (default: every model) once, in a fresh worker,
+    before its first job, so a job's time limit measures the job alone."""
+    for name in models or MODELS:
+        _thread_pools(MODELS[name].library)
+    import sklearn.dummy  # noqa: F401
+    import sklearn.linear_model  # noqa: F401
+
+
+def execute_job(job: dict) -> dict:
+    """Fit one (task, model, seed) and score it. Returns the result row plus predictions.
+
+    Never raises for a model's own failure: the row then has status 'failed' and the error.
+    """
+    result = _fit_and_score(job)
+    release_freed_memory()  # the model and its arrays are gone: the next job starts lower
+    return result
+
+
+def _fit_and_score(job: dict) -> dict:
+    """execute_job's work; its locals (model, arrays) are freed when it returns."""
+    started = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    row = {"task": job["task"], "model": job["model"], "seed": job["seed"],
+           "metric": job["metric"], "lower_is_better": job["lower_is_better"],
+           "fingerprint": job["fingerprint"], "procedure": job["procedure"],
+           "code": job["code"], "threads": job["threads"], "started_at": started, "score": None,
+           "train_score": None, "fit_seconds": None, "predict_seconds": None, "error": None}
+    prediction = None
+    try:
+        # a distributed job carries its arrays; a local one reads them from the cache
+        arrays = job.get("arrays") or load_arrays(job["folder"])
+        metric = get_metric(job["metric"])
+        task_type, k = job["type"], max(len(job["classes"]), 2)
+        X_train, y_train = np.asarray(arrays["X_train"]), np.asarray(arrays["y_train"])
+        X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
+        y_fit = np.log1p(y_train) if job["log_target"] else y_train
+        model = build_model(job["model"], task_type, job["seed"], job["threads"])
+        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]):
+            t0 = time.perf_counter()
+            model.fit(X_train, y_fit)
+            t1 = time.perf_counter()
+            prediction = predict(model, X_hold, task_type, k, job["log_target"])
+            t2 = time.perf_counter()
+            train_prediction = predict(model, X_train, task_type, k, job["log_target"])
+        row.update(score=metric(y_hold, prediction), train_score=metric(y_train, train_prediction),
+                   fit_seconds=round(t1 - t0, 4), predict_seconds=round(t2 - t1, 4),
+                   status="ok")
+    except Exception as exc:  # a model's failure is a result, not a crash of the run
+        row.update(status="failed", error=f"{exc.__class__.__name__}: {exc}"[:2000])
+        prediction = None
+    row["finished_at"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    return {"row": row, "prediction": prediction}
+
+
+def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
+              threads: int) -> list[dict]:
+    """One job per (task, model, seed); ``seeds`` are the seeds themselves."""
+    jobs = []
+    for p in prepared:
+        t = p.task
+        for model in models:
+            for seed in seeds:
+                jobs.append({"task": t.name, "model": model, "seed": seed, "metric": t.metric,
+                             "lower_is_better": t.lower_is_better, "type": t.type,
+                             "classes": [str(c) for c in p.classes],
+                             "log_target": t.log_target, "fingerprint": p.fingerprint,
+                             "procedure": p.procedure, "threads": threads,
+                             "code": preparation_code_digest(),
+                             "folder": str(p.folder),
+                             "cost": MODELS[model].cost(t.type) * p.n_train
+                             * len(p.feature_names) / 1e6})
+    return jobs
+
+
+def lost_row(job: dict, reason: str, status: str) -> dict:
+    now = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    row = {k: job[k] for k in ("task", "model", "seed", "metric", "lower_is_better",
+                               "fingerprint", "procedure", "code", "threads")}
+    row.update(status=status, error=reason, score=None, train_score=None, fit_seconds=None,
+               predict_seconds=None, started_at=now, finished_at=now)
+    return {"row": row, "prediction": None}
+
+
+def in_memory(job: dict) -> dict:
+    """A job's arrays read into memory, to send them to a remote worker once per task."""
+    return {k: np.asarray(v) for k, v in load_arrays(job["folder"]).items()}

@@ -1,0 +1,382 @@
+"""What ``calibrate`` found: the ``Calibration`` result, its text and JSON forms, and the answer.
+
+The answer (``compose_answer``) says which explanation of a weak score the evidence supports,
+the pipeline or the data, from the placement, the dataset's difficulty among the published
+reference's tasks (``tabpar.owndata.difficulty``) and the diagnostics.
+"""
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from tabpar.common.files import atomic_write_text
+from tabpar.common.text import format_number as fmt
+from tabpar.data.suites import Task
+from tabpar.evaluation.placement import DEFAULT_TOLERANCE, Placement
+from tabpar.execution.provenance import library_versions
+from tabpar.models.zoo import DEFAULT_ENSEMBLES
+from tabpar.owndata.difficulty import EASY_PERCENTILE, HARD_PERCENTILE
+from tabpar.owndata.inference import (
+    inferred_items,
+    inferred_text,
+    rerun_command,
+    task_options,
+)
+
+
+def _finite(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_finite(v) for v in value]
+    return value
+
+
+# --- the result ----------------------------------------------------------------------------
+
+@dataclass
+class Calibration:
+    """What ``calibrate`` found; ``str()`` is the text report, ``to_dict()`` the JSON one.
+
+    Scores are in the task metric's units (``lower_is_better`` gives the direction); ``skill``
+    is (naive − score) / (naive − best) on the loss scale (0 = naive floor, 1 = best default
+    ensemble, None when the best default does not beat naive beyond the noise);
+    ``difficulty_percentile`` is 0–100, higher = harder than more of the suite's tasks.
+    """
+
+    data: str
+    task: Task
+    out: Path
+    inferred: dict
+    split: str
+    notes: list
+    placement: Placement
+    score_verdict: str
+    dataset: str
+    difficulty: float
+    difficulty_percentile: float | None
+    suite_reference: str | None
+    suite_tasks: int
+    skill: float | None
+    par_skill: float | None
+    baseline: dict  # model → {score, train_score, fit_seconds, seeds}
+    diagnostics: list  # of Diagnostic
+    answer: str
+    n_holdout: int
+    n_train: int
+    seeds: int
+    skipped: list = field(default_factory=list)
+    failures: list = field(default_factory=list)
+    warnings: list = field(default_factory=list)
+    budget_seconds: float | None = None
+    elapsed_seconds: float = 0.0
+    files: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        """JSON-safe: numbers that are not finite become None."""
+        p = self.placement
+        return _finite(json.loads(json.dumps({
+            "data": self.data, "target": self.task.target, "task": self.task.definition(),
+            "options": task_options(self.task), "out": str(self.out),
+            "inferred": self.inferred, "split": self.split, "notes": self.notes,
+            "n_train": self.n_train, "n_holdout": self.n_holdout, "metric": p.metric,
+            "lower_is_better": p.lower_is_better, "score": p.score, "paired": p.paired,
+            "score_verdict": self.score_verdict, "verdict_message": p.message,
+            "skill": self.skill, "skill_note": p.skill_note, "par_skill": self.par_skill,
+            "noise": p.noise, "naive": p.naive, "par": p.par, "par_model": p.par_model,
+            "best": p.best, "best_model": p.best_model, "baseline": self.baseline,
+            "seeds": self.seeds, "dataset": self.dataset, "difficulty": self.difficulty,
+            "difficulty_percentile": self.difficulty_percentile,
+            "suite_reference": self.suite_reference, "suite_tasks": self.suite_tasks,
+            "diagnostics": [d.to_dict() for d in self.diagnostics], "answer": self.answer,
+            "skipped": self.skipped, "failures": self.failures, "warnings": self.warnings,
+            "budget_seconds": self.budget_seconds, "elapsed_seconds": self.elapsed_seconds,
+            "files": self.files,
+        }, default=str)))
+
+    def diagnostic(self, name: str):
+        """The ``Diagnostic`` called ``name`` (e.g. ``"learning-curve"``), or None."""
+        return next((d for d in self.diagnostics if d.name == name), None)
+
+    # files -----------------------------------------------------------------------------
+    def write_reports(self) -> None:
+        """Write ``report.md`` and ``report.json`` (with the library versions) into ``out``."""
+        atomic_write_text(self.out / "report.md", self.markdown())
+        atomic_write_text(self.out / "report.json", json.dumps(
+            {**self.to_dict(), "versions": library_versions()}, indent=2))
+
+    def add_files(self, files: dict) -> None:
+        """Record files written for this calibration (key → path), e.g. its plots, and rewrite
+        the reports, which list every file."""
+        run = self.files.pop("run", None)
+        self.files.update({key: str(path) for key, path in files.items()})
+        if run is not None:  # the text report names the run folder apart, after the others
+            self.files["run"] = run
+        self.write_reports()
+
+    # text forms ------------------------------------------------------------------------
+    def _baseline_lines(self) -> list[str]:
+        p = self.placement
+        sign = 1 if p.lower_is_better else -1
+        rows = sorted(self.baseline.items(), key=lambda kv: sign * kv[1]["score"])
+        lines = [f"  {'model':<8} {'holdout':>12} {'train':>12} {'fit s':>8}"]
+        for model, s in rows:
+            tag = ("  (floor)" if model == "naive" else "  (linear)" if model == "linear"
+                   else "  best" if model == p.best_model else "")
+            lines.append(f"  {model:<8} {fmt(s['score']):>12} {fmt(s['train_score']):>12} "
+                         f"{s['fit_seconds']:>8.2f}{tag}")
+        for s in self.skipped:
+            lines.append(f"  {s['model']:<8} {'skipped':>12}   (budget; estimated "
+                         f"{s['estimate_seconds']:.0f} s)")
+        return lines
+
+    def __str__(self) -> str:
+        p = self.placement
+        direction = "lower is better" if p.lower_is_better else "higher is better"
+        skill = "n/a" if self.skill is None else f"{self.skill:.2f}"
+        par = "" if self.par_skill is None else f" (par's skill {self.par_skill:.2f})"
+        pct = ("n/a" if self.difficulty_percentile is None
+               else f"{self.difficulty_percentile:.0f}")
+        lines = [f"tabpar calibrate — {Path(self.data).name}, target '{self.task.target}' "
+                 f"({self.task.type}, {p.metric}: {direction})",
+                 "inferred (check these):" + (" nothing, every option was given"
+                                              if not self.inferred else "")]
+        lines += [f"  {item}" for item in inferred_items(self.inferred)]
+        lines += [f"split: {self.split}"]
+        lines += [f"note: {n}" for n in self.notes]
+        lines += ["",
+                  f"score {fmt(p.score)}  →  {self.score_verdict}",
+                  f"  skill {skill}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
+                  f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
+                  f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
+                  f"best default takes), "
+                  + (f"percentile {pct} among the {self.suite_tasks} tasks of the suite "
+                     f"reference (hard ≥ {HARD_PERCENTILE:.0f}, easy ≤ {EASY_PERCENTILE:.0f})"
+                     if self.suite_tasks else "no suite reference to place it against"),
+                  "",
+                  f"baseline on your split ({self.seeds} seed{'s' if self.seeds > 1 else ''} "
+                  f"per model; the suite's procedure):"]
+        lines += self._baseline_lines()
+        lines += ["", "diagnostics ([!] = look at this):"]
+        lines += [f"  {d}" for d in self.diagnostics]
+        lines += ["", f"answer: {self.answer}"]
+        for w in self.warnings:
+            lines.append(f"caution: {w}")
+        if self.files:
+            lines += ["", f"wrote {', '.join(self.files[k] for k in self.files if k != 'run')}; "
+                          f"jobs in {self.files.get('run')}"]
+        lines.append(f"rerun with nothing inferred: {rerun_command(self.data, self.task)}")
+        return "\n".join(lines)
+
+    def markdown(self) -> str:
+        p = self.placement
+        skill = "n/a" if self.skill is None else f"{self.skill:.2f}"
+        pct = ("n/a" if self.difficulty_percentile is None
+               else f"{self.difficulty_percentile:.0f}")
+        out = [f"# Calibration: {Path(self.data).name} → `{self.task.target}`", "",
+               f"- **score**: {p.metric} {fmt(p.score)} "
+               f"({'lower' if p.lower_is_better else 'higher'} is better) → "
+               f"**{self.score_verdict}**",
+               f"- **dataset**: **{self.dataset}** (difficulty {self.difficulty:.2f}, "
+               f"percentile {pct} among {self.suite_tasks} suite tasks)",
+               f"- **skill**: {skill}; noise ±{fmt(p.noise, 3)} (95% bootstrap over "
+               f"{self.n_holdout:,} holdout rows)",
+               f"- **split**: {self.split}",
+               f"- **inferred**: {inferred_text(self.inferred)}", "",
+               "## Answer", "", self.answer, "",
+               "## Baseline on your split", "",
+               "| model | holdout | train | fit s |", "|---|---:|---:|---:|"]
+        sign = 1 if p.lower_is_better else -1
+        for model, s in sorted(self.baseline.items(), key=lambda kv: sign * kv[1]["score"]):
+            out.append(f"| {model} | {fmt(s['score'])} | {fmt(s['train_score'])} | "
+                       f"{s['fit_seconds']:.2f} |")
+        for s in self.skipped:
+            out.append(f"| {s['model']} | skipped (budget) | | ~{s['estimate_seconds']:.0f} |")
+        out += ["", "## Diagnostics", ""]
+        for d in self.diagnostics:
+            out.append(f"- **{d.name}** {'⚠ flagged' if d.flag else 'ok'}: {d.sentence}")
+        if self.warnings:
+            out += ["", "## Cautions", ""] + [f"- {w}" for w in self.warnings]
+        out += ["", "## Files", ""]
+        out += [f"- {k}: `{v}`" for k, v in self.files.items()]
+        out += ["", "Rerun with nothing inferred:", "", "```",
+                rerun_command(self.data, self.task), "```", ""]
+        return "\n".join(out)
+
+
+# --- the answer ----------------------------------------------------------------------------
+
+def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnostics: list,
+                   par_skill: float | None, n_holdout: int, ensembles: list,
+                   tolerance: float = DEFAULT_TOLERANCE) -> str:
+    """One paragraph: is a weak score more likely the pipeline's or the data's, with numbers.
+
+    Claims only differences outside the noise band; says so when the evidence is inconclusive.
+
+    Parameters
+    ----------
+    p : Placement
+        The user's score placed against the zoo's run on the same split.
+    dataset : str
+        ``hard``, ``typical``, ``easy`` or ``unknown`` (``dataset_label``).
+    percentile : float or None
+        The task's difficulty percentile among the suite's tasks (0–100, higher = harder).
+    diagnostics : list of Diagnostic
+        The diagnostics' answers (``run_diagnostics``).
+    par_skill : float or None
+        Par's skill: 0 = the naive floor, 1 = the best default ensemble.
+    n_holdout : int
+        Rows in the holdout.
+    ensembles : list of str
+        The default ensembles that ran.
+    tolerance : float
+        The placement's tolerance (skill units) for calling a score under par.
+
+    Returns
+    -------
+    str
+        The verdict first, then one sentence per finding worth a look.
+    """
+    d = {x.name: x for x in diagnostics}
+    lead = _verdict(p, dataset, percentile, par_skill, n_holdout, tolerance)
+    notes = [_leakage_note(d.get("leakage"), p), _shift_note(d.get("shift")),
+             _optimism_note(d.get("split-optimism")),
+             _learning_curve_note(d.get("learning-curve"), p),
+             _duplicates_note(d.get("conflicting-duplicates")), _ensembles_note(ensembles, p)]
+    return " ".join([lead] + [note for note in notes if note])
+
+
+def _verdict(p: Placement, dataset: str, percentile: float | None, par_skill: float | None,
+             n_holdout: int, tolerance: float) -> str:
+    """The answer's first sentence: pipeline, data, neither, or inconclusive."""
+    noise = f"±{fmt(p.noise, 3)}"
+    base = (f"on the same {n_holdout:,} holdout rows the standard baseline gets par "
+            f"{fmt(p.par)} (the median default ensemble) and best {fmt(p.best)} "
+            f"({p.best_model}) against a naive floor of {fmt(p.naive)}")
+    where = ("" if percentile is None else
+             f"the dataset is {dataset} for the suite (difficulty percentile {percentile:.0f})")
+    score = f"your {p.metric} {fmt(p.score)}"
+    if p.verdict == "worse-than-naive":
+        return (f"The pipeline: {score} is worse than the naive floor ({fmt(p.naive)}) by more "
+                f"than the noise ({noise}), which no dataset explains; {base}. Look for "
+                f"predictions misaligned with row_id, labels given instead of probabilities, "
+                f"or a target transform not undone.")
+    if p.skill is None:
+        return (f"The data: the standard baseline does not beat the naive floor beyond the "
+                f"noise on this split (best {p.best_model} {fmt(p.best)} vs naive "
+                f"{fmt(p.naive)}, {noise}), so a score near the floor — {score} — is what "
+                f"these columns allow, not a fault of the pipeline"
+                + (f"; {where}" if where else "") + ".")
+    if p.verdict == "below-baseline":
+        return (f"More likely the pipeline: {base}, and {score} (skill {p.skill:.2f} against "
+                f"par's {par_skill:.2f}) is below par by more than the noise ({noise}), so these "
+                f"rows allow more than the pipeline gets"
+                + (f"; that {where} does not explain the gap, because the baseline's "
+                   f"numbers come from the same split"
+                   if dataset == "hard" else (f"; {where}" if where else ""))
+                + ". Usual causes: category codes learned separately on the holdout rows, a "
+                  "target transform forgotten, rows shuffled against row_id, a leaky or random "
+                  "validation split during tuning.")
+    if p.verdict == "above-baseline":
+        return (f"Neither: {score} beats the best default ensemble ({p.best_model} "
+                f"{fmt(p.best)}) by more than the noise ({noise})"
+                + (f"; {where}" if where else "") + ".")
+    if par_skill is not None and p.skill < par_skill - tolerance:
+        return (f"Inconclusive: {score} (skill {p.skill:.2f}) is under par ({fmt(p.par)}, "
+                f"skill {par_skill:.2f}) but not by more than the noise of these "
+                f"{n_holdout:,} holdout rows ({noise}), so the evidence supports neither the "
+                f"pipeline nor the data as the cause; a larger holdout"
+                + ("" if p.paired else " or a predictions file (for a paired band)")
+                + " would settle it" + (f"; {where}" if where else "") + ".")
+    if dataset == "hard":
+        return (f"The data, not the pipeline: {score} matches the standard baseline (skill "
+                f"{p.skill:.2f}, par {par_skill:.2f}, differences inside the noise {noise}), "
+                f"and {where}, so a weak-looking score is what these columns allow.")
+    return (f"Not the pipeline: {score} matches the standard baseline (skill "
+            f"{p.skill:.2f}, par {par_skill:.2f}, differences inside the noise {noise})"
+            + (f"; {where}, so the score is about what default models get from these "
+               f"columns" if where else "") + ".")
+
+
+def _leakage_note(leak, p: Placement) -> str | None:
+    """A column that alone reaches most of the full model's gain; a caution when the verdict
+    leans on a baseline that may use it."""
+    if leak is None or not leak.flag:
+        return None
+    top = leak.numbers["columns"][0]
+    suspects = leak.numbers["suspects"]
+    names = ", ".join(repr(c) for c in suspects[:3])
+    reach = (f"{'alone reaches' if len(suspects) == 1 else 'each alone reach up to'} "
+             f"{top['share']:.0%} of the full model's gain")
+    if p.verdict in ("below-baseline", "at-baseline"):
+        return (f"Caution: {names} {reach}; if that is a leak of the target (not "
+                f"simply a dominant column), the baseline above is inflated by it, "
+                f"and a weaker score may only mean the pipeline (rightly) leaves it "
+                f"out.")
+    return (f"Check {names} for leakage ({'it' if len(suspects) == 1 else 'they'}"
+            f" {reach}).")
+
+
+def _shift_note(sh) -> str | None:
+    """Holdout rows unlike the training rows: a limit for every pipeline alike."""
+    if sh is None or not sh.flag:
+        return None
+    if sh.numbers.get("auc") is not None and sh.numbers["auc"] >= 0.7:
+        drivers = ", ".join(x["column"] for x in sh.numbers["drivers"][:2])
+        return (f"The holdout rows differ from the training rows (train-vs-holdout "
+                f"ROC AUC {sh.numbers['auc']:.2f}"
+                + (f", mostly through {drivers}" if drivers else "")
+                + "); that limits the baseline as much as any pipeline — it is the "
+                  "data or the choice of split.")
+    return ("Some columns shift between training and holdout rows (see shift): "
+            "that limits any pipeline alike.")
+
+
+def _optimism_note(opt) -> str | None:
+    """A random validation split that flatters the score on a time holdout."""
+    if opt is None or not opt.flag:
+        return None
+    return (f"A random split scores {fmt(opt.numbers['random_score'])} against "
+            f"{fmt(opt.numbers['time_score'])} on the time holdout: a validation score "
+            f"from a random split would have been optimistic.")
+
+
+def _learning_curve_note(curve, p: Placement) -> str | None:
+    """Whether more rows of the same kind would likely help."""
+    if curve is None or curve.numbers.get("gain_last") is None:
+        return None
+    points = curve.numbers["points"]
+    if curve.flag:
+        return (f"The default model still improves with more rows "
+                f"({fmt(points[-2]['score'])} → {fmt(points[-1]['score'])} from "
+                f"{points[-2]['rows']:,} to {points[-1]['rows']:,} rows), so more data "
+                f"would likely help.")
+    if p.verdict != "below-baseline" and p.verdict != "worse-than-naive":
+        return ("More rows of the same kind are unlikely to help (the learning curve "
+                "is flat within the noise).")
+    return None
+
+
+def _duplicates_note(dup) -> str | None:
+    """Rows with identical features and different targets: a floor no model passes."""
+    if dup is None or not dup.flag:
+        return None
+    floor = (f"an RMSE floor of {fmt(dup.numbers['rmse_floor'])} in target units"
+             if "rmse_floor" in dup.numbers else
+             f"at least {dup.numbers['error_floor']:.1%} of rows misclassified")
+    return (f"{dup.numbers['conflicting_share']:.1%} of rows have identical features "
+            f"but different targets ({floor} over all rows), a floor no model passes.")
+
+
+def _ensembles_note(ensembles: list, p: Placement) -> str | None:
+    """Fewer default ensembles than the suite's: par and best could be better."""
+    missing = [m for m in DEFAULT_ENSEMBLES if m not in ensembles]
+    if missing and p.verdict in ("at-baseline", "above-baseline"):
+        return (f"The baseline ran {len(ensembles)} of the {len(DEFAULT_ENSEMBLES)} default "
+                f"ensembles ({', '.join(ensembles)}); with the others par and best could "
+                f"be better.")
+    return None

@@ -12,7 +12,7 @@ def add_parser(subparsers) -> None:
     place = subparsers.add_parser(
         "place", help="place a score on a suite task against the published reference",
         description=f"Place a holdout score (or a predictions file, scored here) against the "
-                    f"baseline reference: percentile, rank, skill, noise band and a verdict "
+                    f"baseline reference: percentile, rank, gain share, noise band and a verdict "
                     f"({', '.join(VERDICTS)}).")
     place.add_argument("task", help="task name, e.g. ames")
     given = place.add_mutually_exclusive_group(required=True)
@@ -26,7 +26,7 @@ def add_parser(subparsers) -> None:
     options.add_reference(place, f"published reference name ({options.reference_names()}) or "
                                  f"a results folder")
     place.add_argument("--tolerance", type=float, default=DEFAULT_TOLERANCE,
-                       help=f"skill units under par still called at-baseline (default: "
+                       help=f"gain share units under par still called at-baseline (default: "
                             f"{DEFAULT_TOLERANCE})")
     place.add_argument("--force", action="store_true",
                        help="place even when the task's data no longer matches the reference")

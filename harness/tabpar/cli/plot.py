@@ -7,7 +7,7 @@ from tabpar.cli import options
 def add_parser(subparsers) -> None:
     plot = subparsers.add_parser("plot", help="draw comparison plots")
     kinds = plot.add_subparsers(dest="plot_kind", metavar="KIND", required=True)
-    suite = kinds.add_parser("suite", help="skill of each default ensemble per task, tasks "
+    suite = kinds.add_parser("suite", help="gain share of each default ensemble per task, tasks "
                                            "ordered by difficulty")
     suite.add_argument("out", help="output file (.png or .svg)")
     options.add_reference(suite, "reference name or results folder")

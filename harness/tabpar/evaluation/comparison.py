@@ -188,7 +188,7 @@ def _task_delta(task: Task, metric, y, naive, base_preds, cand_preds, rng, n_boo
     scale = float(metric.gain(base_scores.mean(), naive_score))
     if not scale > 0:
         return None, None, None, None, base_scores.mean(), cand_scores.mean()
-    # each side's skill-like gain over naive per seed, averaged over models
+    # each side's normalised gain over naive per seed, averaged over models
     base_gain = (metric.gain(base_scores, naive_score) / scale).mean(axis=0)
     cand_gain = (metric.gain(cand_scores, naive_score) / scale).mean(axis=0)
     delta = float(cand_gain.mean() - base_gain.mean())

@@ -3,7 +3,7 @@
 Numbers (all in the task metric's units unless said otherwise):
 - ``percentile``: share of reference runs the score beats, ties counting half, 0–100;
 - ``rank``: 1 = best among the reference runs plus this score (equal scores share a rank);
-- ``skill``: ``gain(score, naive) / gain(best, naive)``: 0 = the naive floor, 1 = the best
+- ``gain_share``: ``gain(score, naive) / gain(best, naive)``: 0 = the naive floor, 1 = the best
   default ensemble, > 1 better; None when the best default does not beat naive beyond the noise;
 - ``noise``: half-width of the 95% bootstrap band (holdout rows resampled) of the best default's
   score, or of the paired difference user − best when predictions are given.
@@ -54,8 +54,8 @@ class Placement:
     best_model: str
     par: float
     par_model: str
-    skill: float | None
-    skill_note: str
+    gain_share: float | None
+    gain_share_note: str
     noise: float
     seed_spread: float
     paired: bool
@@ -86,7 +86,7 @@ class Placement:
 
     def __str__(self) -> str:
         direction = "lower is better" if self.lower_is_better else "higher is better"
-        skill = "n/a" if self.skill is None else f"{self.skill:.2f}"
+        gain_share = "n/a" if self.gain_share is None else f"{self.gain_share:.2f}"
         diff = ("n/a" if self.difficulty_percentile is None
                 else f"{self.difficulty_percentile:.0f}")
         lines = [
@@ -95,14 +95,14 @@ class Placement:
             f"  beats {self.percentile:.0f}% of the {self.n_reference} reference runs "
             f"(percentile); rank {self.rank} of {self.n_reference + 1}",
             f"  naive {self.naive:.4g} · par {self.par:.4g} ({self.par_model}) · best "
-            f"{self.best:.4g} ({self.best_model}) · skill {skill}",
+            f"{self.best:.4g} ({self.best_model}) · gain share {gain_share}",
             f"  noise ±{self.noise:.3g} (95% bootstrap over holdout rows"
             f"{', paired with your predictions' if self.paired else ''}) · seed spread "
             f"{self.seed_spread:.3g}",
             f"  task difficulty percentile {diff} among the reference's tasks (higher = harder)",
         ]
-        if self.skill is None and self.skill_note:
-            lines.append(f"  skill: {self.skill_note}")
+        if self.gain_share is None and self.gain_share_note:
+            lines.append(f"  gain share: {self.gain_share_note}")
         lines.extend(self.extra_lines)
         for key, value in self.extra.items():
             if key not in self.extra_shown:
@@ -249,12 +249,12 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
 
     gain_best = float(metric.gain(tref.best, tref.naive))
     if gain_best > best_noise:
-        skill = float(metric.gain(score, tref.naive)) / gain_best
-        par_skill = float(metric.gain(tref.par, tref.naive)) / gain_best
-        skill_note = ""
+        gain_share = float(metric.gain(score, tref.naive)) / gain_best
+        par_gain_share = float(metric.gain(tref.par, tref.naive)) / gain_best
+        gain_share_note = ""
     else:
-        skill = par_skill = None
-        skill_note = (f"the best default ({tref.best_model} {tref.best:.4g}) is not better than "
+        gain_share = par_gain_share = None
+        gain_share_note = (f"the best default ({tref.best_model} {tref.best:.4g}) is not better than "
                       f"naive ({tref.naive:.4g}) beyond the noise (±{best_noise:.3g}): nothing "
                       f"to learn on this split")
 
@@ -262,7 +262,7 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         verdict = "worse-than-naive"
     elif bands["best"][0] > 0:
         verdict = "above-baseline"
-    elif skill is not None and skill < par_skill - tolerance and bands["par"][1] < 0:
+    elif gain_share is not None and gain_share < par_gain_share - tolerance and bands["par"][1] < 0:
         verdict = "below-baseline"
     else:
         verdict = "at-baseline"
@@ -271,19 +271,19 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     if difficulties is None:
         difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
     difficulty_pct = share_below(tref.difficulty, difficulties.values())
-    message = _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance)
+    message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance)
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
         percentile=percentile_of(metric, score, runs),
         rank=competition_rank(metric, score, runs), n_reference=len(runs), naive=tref.naive,
         best=tref.best, best_model=tref.best_model, par=tref.par, par_model=tref.par_model,
-        skill=skill, skill_note=skill_note, noise=float(noise), seed_spread=tref.seed_spread,
+        gain_share=gain_share, gain_share_note=gain_share_note, noise=float(noise), seed_spread=tref.seed_spread,
         paired=paired, verdict=verdict, difficulty_percentile=difficulty_pct, message=message,
         tolerance=tolerance, reference=str(ref.folder), model_means=dict(tref.means),
         reference_scores={m: list(v) for m, v in tref.scores.items()})
 
 
-def _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance) -> str:
+def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance) -> str:
     if verdict == "worse-than-naive":
         floor = "the mean" if "regression" in metric.task_types else "the class prior"
         return (f"Worse than predicting {floor} ({fmt(tref.naive)}) by more than the noise (±{noise:.3g}): look for a bug "
@@ -299,14 +299,14 @@ def _message(verdict, metric, score, tref, skill, noise, skill_note, tolerance) 
     if verdict == "below-baseline":
         listing = ", ".join(f"{m} {fmt(tref.means[m])} (by {abs(tref.means[m] - score):.3g})"
                             for m in beaten_by)
-        return (f"Skill {skill:.2f} is more than {tolerance:g} under par's "
+        return (f"Gain share {gain_share:.2f} is more than {tolerance:g} under par's "
                 f"({tref.par_model} {fmt(tref.par)}), beyond the noise (±{noise:.3g}); beaten "
                 f"by {listing}. Usual causes: category codes learned separately on the holdout "
                 f"rows, an RMSLE task trained without log1p, rows shuffled against row_id, a "
                 f"leaky or random validation split during tuning.")
-    if skill is None:
-        return (f"At the baseline: {skill_note}; this task's holdout does not reward "
+    if gain_share is None:
+        return (f"At the baseline: {gain_share_note}; this task's holdout does not reward "
                 f"modelling, so a weak score here is the data's, not the pipeline's.")
-    return (f"Within the standard baseline's range: skill {skill:.2f} against par "
+    return (f"Within the standard baseline's range: gain share {gain_share:.2f} against par "
             f"{tref.par_model} {fmt(tref.par)} and best {tref.best_model} {fmt(tref.best)}, "
             f"differences inside the noise (±{noise:.3g}) or the tolerance ({tolerance:g}).")

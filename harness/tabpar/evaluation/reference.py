@@ -184,11 +184,11 @@ def build_reference(suite: str = "default", out: str | Path | None = None, seeds
     return result
 
 
-def model_skills(reference: Reference, against: Reference | None = None) -> pd.DataFrame:
-    """Skill of each model's mean score per task (0 = naive, 1 = best default), long format.
+def model_gain_shares(reference: Reference, against: Reference | None = None) -> pd.DataFrame:
+    """Gain share of each model's mean score per task (0 = naive, 1 = best default), long format.
 
     ``against``: measure ``reference``'s models on the naive/best of another reference (to
-    overlay a new run on the published one). Columns: task, model, score, skill, difficulty.
+    overlay a new run on the published one). Columns: task, model, score, gain_share, difficulty.
     """
     base = against or reference
     rows = []
@@ -199,7 +199,7 @@ def model_skills(reference: Reference, against: Reference | None = None) -> pd.D
         metric = get_metric(b.metric)
         scale = float(metric.gain(b.best, b.naive))
         for model, mean in reference.task(task).means.items():
-            skill = float(metric.gain(mean, b.naive)) / scale if scale > 0 else float("nan")
-            rows.append({"task": task, "model": model, "score": mean, "skill": skill,
+            gain_share = float(metric.gain(mean, b.naive)) / scale if scale > 0 else float("nan")
+            rows.append({"task": task, "model": model, "score": mean, "gain_share": gain_share,
                          "difficulty": b.difficulty})
     return pd.DataFrame(rows)

@@ -42,7 +42,7 @@ def _finite(value):
 class Calibration:
     """What ``calibrate`` found; ``str()`` is the text report, ``to_dict()`` the JSON one.
 
-    Scores are in the task metric's units (``lower_is_better`` gives the direction); ``skill``
+    Scores are in the task metric's units (``lower_is_better`` gives the direction); ``gain_share``
     is (naive − score) / (naive − best) on the loss scale (0 = naive floor, 1 = best default
     ensemble, None when the best default does not beat naive beyond the noise);
     ``difficulty_percentile`` is 0–100, higher = harder than more of the suite's tasks.
@@ -61,8 +61,8 @@ class Calibration:
     difficulty_percentile: float | None
     suite_reference: str | None
     suite_tasks: int
-    skill: float | None
-    par_skill: float | None
+    gain_share: float | None
+    par_gain_share: float | None
     baseline: dict  # model → {score, train_score, fit_seconds, seeds}
     diagnostics: list  # of Diagnostic
     answer: str
@@ -86,7 +86,7 @@ class Calibration:
             "n_train": self.n_train, "n_holdout": self.n_holdout, "metric": p.metric,
             "lower_is_better": p.lower_is_better, "score": p.score, "paired": p.paired,
             "score_verdict": self.score_verdict, "verdict_message": p.message,
-            "skill": self.skill, "skill_note": p.skill_note, "par_skill": self.par_skill,
+            "gain_share": self.gain_share, "gain_share_note": p.gain_share_note, "par_gain_share": self.par_gain_share,
             "noise": p.noise, "naive": p.naive, "par": p.par, "par_model": p.par_model,
             "best": p.best, "best_model": p.best_model, "baseline": self.baseline,
             "seeds": self.seeds, "dataset": self.dataset, "difficulty": self.difficulty,
@@ -137,8 +137,8 @@ class Calibration:
     def __str__(self) -> str:
         p = self.placement
         direction = "lower is better" if p.lower_is_better else "higher is better"
-        skill = "n/a" if self.skill is None else f"{self.skill:.2f}"
-        par = "" if self.par_skill is None else f" (par's skill {self.par_skill:.2f})"
+        gain_share = "n/a" if self.gain_share is None else f"{self.gain_share:.2f}"
+        par = "" if self.par_gain_share is None else f" (par's gain share {self.par_gain_share:.2f})"
         pct = ("n/a" if self.difficulty_percentile is None
                else f"{self.difficulty_percentile:.0f}")
         lines = [f"tabpar calibrate — {Path(self.data).name}, target '{self.task.target}' "
@@ -150,7 +150,7 @@ class Calibration:
         lines += [f"note: {n}" for n in self.notes]
         lines += ["",
                   f"score {fmt(p.score)}  →  {self.score_verdict}",
-                  f"  skill {skill}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
+                  f"  gain share {gain_share}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
                   f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
                   f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
                   f"best default takes), "
@@ -174,7 +174,7 @@ class Calibration:
 
     def markdown(self) -> str:
         p = self.placement
-        skill = "n/a" if self.skill is None else f"{self.skill:.2f}"
+        gain_share = "n/a" if self.gain_share is None else f"{self.gain_share:.2f}"
         pct = ("n/a" if self.difficulty_percentile is None
                else f"{self.difficulty_percentile:.0f}")
         out = [f"# Calibration: {Path(self.data).name} → `{self.task.target}`", "",
@@ -183,7 +183,7 @@ class Calibration:
                f"**{self.score_verdict}**",
                f"- **dataset**: **{self.dataset}** (difficulty {self.difficulty:.2f}, "
                f"percentile {pct} among {self.suite_tasks} suite tasks)",
-               f"- **skill**: {skill}; noise ±{fmt(p.noise, 3)} (95% bootstrap over "
+               f"- **gain share**: {gain_share}; noise ±{fmt(p.noise, 3)} (95% bootstrap over "
                f"{self.n_holdout:,} holdout rows)",
                f"- **split**: {self.split}",
                f"- **inferred**: {inferred_text(self.inferred)}", "",
@@ -211,7 +211,7 @@ class Calibration:
 # --- the answer ----------------------------------------------------------------------------
 
 def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnostics: list,
-                   par_skill: float | None, n_holdout: int, ensembles: list,
+                   par_gain_share: float | None, n_holdout: int, ensembles: list,
                    tolerance: float = DEFAULT_TOLERANCE) -> str:
     """One paragraph: is a weak score more likely the pipeline's or the data's, with numbers.
 
@@ -227,14 +227,14 @@ def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnos
         The task's difficulty percentile among the suite's tasks (0–100, higher = harder).
     diagnostics : list of Diagnostic
         The diagnostics' answers (``run_diagnostics``).
-    par_skill : float or None
-        Par's skill: 0 = the naive floor, 1 = the best default ensemble.
+    par_gain_share : float or None
+        Par's gain share: 0 = the naive floor, 1 = the best default ensemble.
     n_holdout : int
         Rows in the holdout.
     ensembles : list of str
         The default ensembles that ran.
     tolerance : float
-        The placement's tolerance (skill units) for calling a score under par.
+        The placement's tolerance (gain-share units) for calling a score under par.
 
     Returns
     -------
@@ -242,7 +242,7 @@ def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnos
         The verdict first, then one sentence per finding worth a look.
     """
     d = {x.name: x for x in diagnostics}
-    lead = _verdict(p, dataset, percentile, par_skill, n_holdout, tolerance)
+    lead = _verdict(p, dataset, percentile, par_gain_share, n_holdout, tolerance)
     notes = [_leakage_note(d.get("leakage"), p), _shift_note(d.get("shift")),
              _optimism_note(d.get("split-optimism")),
              _learning_curve_note(d.get("learning-curve"), p),
@@ -250,7 +250,7 @@ def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnos
     return " ".join([lead] + [note for note in notes if note])
 
 
-def _verdict(p: Placement, dataset: str, percentile: float | None, par_skill: float | None,
+def _verdict(p: Placement, dataset: str, percentile: float | None, par_gain_share: float | None,
              n_holdout: int, tolerance: float) -> str:
     """The answer's first sentence: pipeline, data, neither, or inconclusive."""
     noise = f"±{fmt(p.noise, 3)}"
@@ -265,15 +265,15 @@ def _verdict(p: Placement, dataset: str, percentile: float | None, par_skill: fl
                 f"than the noise ({noise}), which no dataset explains; {base}. Look for "
                 f"predictions misaligned with row_id, labels given instead of probabilities, "
                 f"or a target transform not undone.")
-    if p.skill is None:
+    if p.gain_share is None:
         return (f"The data: the standard baseline does not beat the naive floor beyond the "
                 f"noise on this split (best {p.best_model} {fmt(p.best)} vs naive "
                 f"{fmt(p.naive)}, {noise}), so a score near the floor — {score} — is what "
                 f"these columns allow, not a fault of the pipeline"
                 + (f"; {where}" if where else "") + ".")
     if p.verdict == "below-baseline":
-        return (f"More likely the pipeline: {base}, and {score} (skill {p.skill:.2f} against "
-                f"par's {par_skill:.2f}) is below par by more than the noise ({noise}), so these "
+        return (f"More likely the pipeline: {base}, and {score} (gain share {p.gain_share:.2f} against "
+                f"par's {par_gain_share:.2f}) is below par by more than the noise ({noise}), so these "
                 f"rows allow more than the pipeline gets"
                 + (f"; that {where} does not explain the gap, because the baseline's "
                    f"numbers come from the same split"
@@ -285,19 +285,19 @@ def _verdict(p: Placement, dataset: str, percentile: float | None, par_skill: fl
         return (f"Neither: {score} beats the best default ensemble ({p.best_model} "
                 f"{fmt(p.best)}) by more than the noise ({noise})"
                 + (f"; {where}" if where else "") + ".")
-    if par_skill is not None and p.skill < par_skill - tolerance:
-        return (f"Inconclusive: {score} (skill {p.skill:.2f}) is under par ({fmt(p.par)}, "
-                f"skill {par_skill:.2f}) but not by more than the noise of these "
+    if par_gain_share is not None and p.gain_share < par_gain_share - tolerance:
+        return (f"Inconclusive: {score} (gain share {p.gain_share:.2f}) is under par ({fmt(p.par)}, "
+                f"gain share {par_gain_share:.2f}) but not by more than the noise of these "
                 f"{n_holdout:,} holdout rows ({noise}), so the evidence supports neither the "
                 f"pipeline nor the data as the cause; a larger holdout"
                 + ("" if p.paired else " or a predictions file (for a paired band)")
                 + " would settle it" + (f"; {where}" if where else "") + ".")
     if dataset == "hard":
-        return (f"The data, not the pipeline: {score} matches the standard baseline (skill "
-                f"{p.skill:.2f}, par {par_skill:.2f}, differences inside the noise {noise}), "
+        return (f"The data, not the pipeline: {score} matches the standard baseline (gain share "
+                f"{p.gain_share:.2f}, par {par_gain_share:.2f}, differences inside the noise {noise}), "
                 f"and {where}, so a weak-looking score is what these columns allow.")
-    return (f"Not the pipeline: {score} matches the standard baseline (skill "
-            f"{p.skill:.2f}, par {par_skill:.2f}, differences inside the noise {noise})"
+    return (f"Not the pipeline: {score} matches the standard baseline (gain share "
+            f"{p.gain_share:.2f}, par {par_gain_share:.2f}, differences inside the noise {noise})"
             + (f"; {where}, so the score is about what default models get from these "
                f"columns" if where else "") + ".")
 

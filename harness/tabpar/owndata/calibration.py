@@ -88,7 +88,7 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
     reference : str
         The published reference whose tasks the difficulty is placed among.
     tolerance : float
-        Skill (0 = naive floor, 1 = best default) within which a score counts as at par.
+        Gain share (0 = naive floor, 1 = best default) within which a score counts as at par.
     on_event : callable, optional
         Takes one progress message per step.
     executor, scheduler : str
@@ -167,11 +167,11 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
     tref = ref.task(task.name)
     metric_obj = get_metric(task.metric)
     gain_best = float(metric_obj.gain(tref.best, tref.naive))
-    par_skill = (float(metric_obj.gain(tref.par, tref.naive)) / gain_best
-                 if placement.skill is not None else None)
+    par_gain_share = (float(metric_obj.gain(tref.par, tref.naive)) / gain_best
+                 if placement.gain_share is not None else None)
     dataset = dataset_label(placement.difficulty_percentile)
     answer = compose_answer(placement, dataset, placement.difficulty_percentile, diagnostics,
-                            par_skill, prepared.n_holdout, ensembles, tolerance)
+                            par_gain_share, prepared.n_holdout, ensembles, tolerance)
     warnings = _cautions(suite_note, ensembles, seeds, budget, time.monotonic() - started,
                          overrun, failures)
 
@@ -180,7 +180,7 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         split=prepared.split_description, notes=list(prepared.notes), placement=placement,
         score_verdict=placement.verdict, dataset=dataset, difficulty=float(tref.difficulty),
         difficulty_percentile=placement.difficulty_percentile, suite_reference=suite_folder,
-        suite_tasks=len(difficulties or {}), skill=placement.skill, par_skill=par_skill,
+        suite_tasks=len(difficulties or {}), gain_share=placement.gain_share, par_gain_share=par_gain_share,
         baseline=_baseline(ref, task.name), diagnostics=diagnostics, answer=answer,
         n_holdout=prepared.n_holdout, n_train=prepared.n_train, seeds=seeds, skipped=skipped,
         failures=failures, warnings=warnings, budget_seconds=budget)

@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from tabpar.common.errors import UserError
-from tabpar.evaluation.reference import Reference, model_skills
+from tabpar.evaluation.reference import Reference, model_gain_shares
 from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
 
 # Okabe–Ito colour-blind-safe palette
@@ -143,7 +143,7 @@ def leaderboard_panel(ax, leaderboard, score: float) -> None:
 
 
 def suite_plot(reference: Reference, overlay: Reference | None = None, ax=None):
-    """Per task, the skill of each default ensemble; tasks ordered by difficulty (hardest at
+    """Per task, the gain share of each default ensemble; tasks ordered by difficulty (hardest at
     the top).
 
     Parameters
@@ -160,7 +160,7 @@ def suite_plot(reference: Reference, overlay: Reference | None = None, ax=None):
     -------
     matplotlib.figure.Figure
     """
-    table = model_skills(reference)
+    table = model_gain_shares(reference)
     table = table[table["model"].isin(DEFAULT_ENSEMBLES)]
     if table.empty:
         raise UserError(f"The reference {reference.folder} has no default-ensemble results to "
@@ -172,34 +172,34 @@ def suite_plot(reference: Reference, overlay: Reference | None = None, ax=None):
                             f"but the reference is of suite '{reference.suite}' (other rows, "
                             f"other holdouts); pass --reference {overlay.suite} or overlay a "
                             f"run of '{reference.suite}'.")
-        extra = model_skills(overlay, against=reference)
+        extra = model_gain_shares(overlay, against=reference)
         extra = extra[extra["model"].isin(DEFAULT_ENSEMBLES) & extra["task"].isin(table["task"])]
     order = table.groupby("task")["difficulty"].first().sort_values().index.tolist()
     fig, ax = new_axes(ax, 8.5, 0.5 * len(order) + 2.4)
     low = -0.5  # a model far below naive would squash every other point
-    shown = pd.concat([table["skill"], extra["skill"]]) if extra is not None else table["skill"]
+    shown = pd.concat([table["gain_share"], extra["gain_share"]]) if extra is not None else table["gain_share"]
     left = max(low, min(-0.1, float(np.nanmin(shown)) - 0.05))
     right = max(1.1, float(np.nanmax(shown)) + 0.05)
     for j, model in enumerate(DEFAULT_ENSEMBLES):
         rows = np.arange(len(order)) + (j - 2) * 0.1
         sub = table[table["model"] == model].set_index("task").reindex(order)
-        ax.scatter(np.clip(sub["skill"], low, None), rows, s=34, color=PALETTE[model],
+        ax.scatter(np.clip(sub["gain_share"], low, None), rows, s=34, color=PALETTE[model],
                    edgecolor="black", linewidth=0.4, zorder=3, label=model)
         if extra is not None:
             mine = extra[extra["model"] == model].set_index("task").reindex(order)
-            ax.scatter(np.clip(mine["skill"], low, None), rows, s=95, facecolor="none",
+            ax.scatter(np.clip(mine["gain_share"], low, None), rows, s=95, facecolor="none",
                        edgecolor=PALETTE[model], linewidth=1.6, zorder=4)
     if extra is not None:
         ax.scatter([], [], s=95, facecolor="none", edgecolor="black", linewidth=1.6,
                    label=f"hollow: {Path(overlay.folder).name}")
-    ax.axvline(0, color="#999999", linestyle=":", label="naive floor (skill 0)")
-    ax.axvline(1, color="#0072B2", linestyle="--", label="best default (skill 1)")
+    ax.axvline(0, color="#999999", linestyle=":", label="naive floor (gain share 0)")
+    ax.axvline(1, color="#0072B2", linestyle="--", label="best default (gain share 1)")
     labels = [f"{t}  (difficulty {table[table['task'] == t]['difficulty'].iloc[0]:.2f})"
               for t in order]
     ax.set_yticks(range(len(order)))
     ax.set_yticklabels(labels, fontsize=9)
     ax.set_xlim(left, right)
-    ax.set_xlabel("skill = gain over naive / best default's gain  (better →"
+    ax.set_xlabel("gain share = gain over naive / best default's gain  (better →"
                   + (f"; under {low} drawn at {low})" if left <= low else ")"))
     ax.set_title(f"Default ensembles across suite '{reference.suite}'\n"
                  f"(tasks ordered by difficulty, hardest at the top)", fontsize=11)

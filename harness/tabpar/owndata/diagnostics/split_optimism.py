@@ -88,5 +88,5 @@ def split_optimism(data: TaskData, seed: int = 0) -> Diagnostic:
                     f"±{fmt(noise, 3)}), so a random validation split would not flatter the score.")
     else:
         sentence = (f"{head}: the difference ({fmt(gap, 3, sign=True)}) is inside the noise (±{fmt(noise, 3)}), "
-                    f"so there is no sign that a random validation split overstates skill.")
+                    f"so there is no sign that a random validation split overstates the score.")
     return Diagnostic("split-optimism", bool(flag), numbers, sentence)

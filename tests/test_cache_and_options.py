@@ -1,13 +1,16 @@
-"""The prepared-array cache commands, the executor options' errors, and compare's reuse of the
-published reference's jobs."""
+"""The prepared-array cache commands, compare's reuse of the published reference's jobs, and
+the library versions a run records and imports. (The executor options' errors are cases of the
+bad-input matrix, tests/test_bad_input.py.)"""
 import json
+import shutil
 
 import pytest
 
 from tabpar.cli.main import main
+from tabpar.evaluation import comparison
 from tabpar.evaluation.comparison import compare
-from tabpar.evaluation.reference import published_root
-from tabpar.execution.runner import library_versions, preparation_code_digest, run_suite
+from tabpar.execution.provenance import library_versions
+from tabpar.execution.runner import run_suite
 
 
 def test_cache_info_lists_entries_and_clear_empties_it(tmp_path, monkeypatch, capsys):
@@ -23,27 +26,36 @@ def test_cache_info_lists_entries_and_clear_empties_it(tmp_path, monkeypatch, ca
     assert "0 entries" in capsys.readouterr().out
 
 
-@pytest.mark.parametrize("argv,words", [
-    (["--scheduler", "tcp://127.0.0.1:1"], "--scheduler needs --executor dask"),
-    (["--executor", "dask"], "--executor dask needs --scheduler"),
-])
-def test_executor_options_that_cannot_work_are_one_sentence(argv, words, tmp_path, capsys):
-    code = main(["run", "--suite", "quick", "--tasks", "attrition", "--models", "naive",
-                 "--seeds", "1", "--out", str(tmp_path / "out")] + argv)
-    err = capsys.readouterr().err
-    assert code == 2 and words in err and "Traceback" not in err
-    assert not (tmp_path / "out").exists()
+def _as_published_reference(quick_run, root, monkeypatch, change=None):
+    """The session's quick run (made by this code with these libraries) set up as the published
+    quick reference under ``root``; ``change`` edits each of its job rows first."""
+    reference = root / "reference" / "quick"
+    shutil.copytree(quick_run.out, reference)
+    if change is not None:
+        jobs = reference / "jobs.jsonl"
+        rows = [change(json.loads(line)) for line in jobs.read_text().splitlines()]
+        jobs.write_text("".join(json.dumps(r, sort_keys=True) + "\n" for r in rows))
+    monkeypatch.setattr(comparison, "published_root", lambda: root)
+    return reference
 
 
-def test_compare_reuses_the_published_reference_when_everything_matches(tmp_path):
-    reference = published_root() / "reference" / "quick"
-    rows = [json.loads(line) for line in open(reference / "jobs.jsonl")]
-    row = next(r for r in rows if r["task"] == "attrition" and r["model"] == "lgbm")
-    same = row["versions"] == library_versions() and row.get("code") == preparation_code_digest()
-    result = compare("builtin", suite="quick", tasks=["attrition"], models=["lgbm"], seeds=2,
-                     out=tmp_path, workers=1)
-    # reused only when library versions and the preparing code are those the reference used
-    assert result.reused_baseline_jobs == (2 if same else 0)
+@pytest.mark.parametrize("change, reused", [
+    (None, 1),  # same data, library versions and preparing code: the job is reused
+    (lambda r: {**r, "code": "0" * 16}, 0),  # other preparing code
+    (lambda r: {**r, "versions": {**r["versions"], "scikit-learn": "0.0"}}, 0),  # other library
+], ids=["everything-matches", "other-code", "other-versions"])
+def test_compare_reuses_published_reference_jobs_only_when_everything_matches(
+        change, reused, quick_run, tmp_path, monkeypatch):
+    reference = _as_published_reference(quick_run, tmp_path / "published", monkeypatch, change)
+    result = compare("builtin", suite="quick", tasks=["attrition"], models=["lgbm"], seeds=1,
+                     out=tmp_path / "cmp", workers=1)
+    assert result.reused_baseline_jobs == reused
+    baseline = [json.loads(line) for line in open(tmp_path / "cmp" / "baseline" / "jobs.jsonl")]
+    assert [(r["task"], r["model"], r["seed"]) for r in baseline] == [("attrition", "lgbm", 0)]
+    if reused:  # the reference's own predictions file, copied
+        name = baseline[0]["predictions"]
+        assert (tmp_path / "cmp" / "baseline" / name).read_bytes() == \
+            (reference / name).read_bytes()
 
 
 def test_versions_are_the_installed_packages_and_a_run_imports_only_its_models_libraries(

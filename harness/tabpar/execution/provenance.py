@@ -22,11 +22,17 @@ def tabpar_version() -> str:
         return "0+unknown"
 
 
+@lru_cache(maxsize=1)
+def _providers() -> dict:
+    # scanning every installed distribution takes about half a second: once per process
+    return packages_distributions()
+
+
 @lru_cache(maxsize=None)
 def import_package_version(import_name: str) -> str | None:
     """Version of the installed distribution that provides ``import_name``, read from package
     metadata (so the library itself is not imported); None when it is not installed."""
-    for dist in packages_distributions().get(import_name, []):
+    for dist in _providers().get(import_name, []):
         try:
             return version(dist)
         except PackageNotFoundError:

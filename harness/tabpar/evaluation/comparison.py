@@ -28,7 +28,7 @@ from tabpar.common.metrics import get_metric
 from tabpar.common.text import html_table
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.reference import check_format, published_root
-from tabpar.evaluation.stats import bootstrap_scores, holm, signed_rank_p
+from tabpar.evaluation.stats import N_BOOTSTRAP, bootstrap_scores, holm, signed_rank_p
 from tabpar.execution.cache import load_arrays, prepare_task
 from tabpar.execution.provenance import library_versions, preparation_code_digest
 from tabpar.execution.runner import run_suite
@@ -46,7 +46,6 @@ from tabpar.procedure.variants import builtin, resolve_procedure
 AA_SEED_OFFSET = 1000
 DEFAULT_MODELS = ("rf", "lgbm")
 ALPHA = 0.05
-N_BOOTSTRAP = 1000
 N_BOOTSTRAP_LARGE = 250  # for holdouts over LARGE_HOLDOUT rows, to keep compare fast
 LARGE_HOLDOUT = 20_000
 

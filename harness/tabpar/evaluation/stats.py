@@ -150,15 +150,3 @@ def signed_rank_p(deltas, tolerance: float, se=None) -> float | None:
     if np.count_nonzero(d) < 2:
         return None
     return float(stats.wilcoxon(d, zero_method="wilcox", alternative="two-sided").pvalue)
-
-
-def smallest_signed_rank_p(n_tasks: int) -> float:
-    """The smallest two-sided p-value an exact signed-rank test can reach with ``n_tasks``
-    non-zero deltas (all of one sign): ``2 / 2**n``, capped at 1.
-
-    Examples
-    --------
-    >>> smallest_signed_rank_p(4)
-    0.125
-    """
-    return float(min(1.0, 2.0 / 2.0 ** n_tasks)) if n_tasks > 0 else 1.0

@@ -19,10 +19,7 @@ def add_parser(subparsers) -> None:
 
 
 def export_command(args) -> int:
-    from tabpar.cli.render import render_export
-    from tabpar.data.export import export_task
-    from tabpar.data.suites import load_suite
+    from tabpar.data.export import export
 
-    task = load_suite(args.suite).task(args.task)
-    print(render_export(export_task(task, args.dir, args.format), args.dir))
+    print(export(args.task, args.dir, suite=args.suite, fmt=args.format))  # ExportedSplit
     return 0

@@ -78,13 +78,6 @@ def _direction_and_submit(info: dict) -> str:
             f"{info['how_to_submit']}")
 
 
-def render_export(info: dict, folder) -> str:
-    """What 'tabpar export' wrote (task.json's contents in ``info``)."""
-    return (f"wrote {folder}/{info['files']['train']} ({info['n_train']:,} rows with target), "
-            f"{folder}/{info['files']['holdout']} ({info['n_holdout']:,} rows without) and "
-            f"task.json\n" + _direction_and_submit(info))
-
-
 def render_split(info: dict, data, folder, inferred: str) -> str:
     """What 'tabpar calibrate --export-split' inferred and wrote."""
     folder = Path(folder)

@@ -74,6 +74,7 @@ def _add_task_options(cal) -> None:
 
 def calibrate_command(args) -> int:
     from tabpar.cli.render import render_split
+    from tabpar.evaluation.reference import reference_for
     from tabpar.owndata.calibration import calibrate
     from tabpar.owndata.inference import export_split, inferred_text
     from tabpar.report.learning_curve import save_calibration_plots
@@ -93,7 +94,7 @@ def calibrate_command(args) -> int:
     say = (lambda m: print(f"  {m}", file=sys.stderr)) if progress else None
     result = calibrate(args.data, args.target, score=args.score, predictions=args.predictions,
                        seeds=args.seeds, models=args.models, budget=args.budget, out=args.out,
-                       reference=args.reference, on_event=say, executor=args.executor,
+                       reference=args.reference or reference_for(), on_event=say, executor=args.executor,
                        scheduler=args.scheduler, **table)
     save_calibration_plots(result, result.out)
     print(json.dumps(result.to_dict(), indent=2) if args.json else result)

@@ -12,7 +12,6 @@ CALIBRATE_SEEDS = 1
 COMPARE_TOLERANCE = 0.0
 QUICK_SUITE = "quick"  # run and compare
 DEFAULT_SUITE = "default"  # export and reference build
-DEFAULT_REFERENCE = DEFAULT_SUITE  # the published reference of the default suite
 EXPORT_FORMAT = "csv"
 EXECUTORS = ("local", "dask")
 
@@ -71,9 +70,11 @@ def add_suite(parser, default: str, text: str) -> None:
     parser.add_argument("--suite", default=default, help=f"{text} (default: {default})")
 
 
-def add_reference(parser, text: str) -> None:
-    parser.add_argument("--reference", default=DEFAULT_REFERENCE,
-                        help=f"{text} (default: {DEFAULT_REFERENCE})")
+REFERENCE_RULE = ("the published reference named like --suite, else default")
+
+
+def add_reference(parser, text: str, rule: str = REFERENCE_RULE) -> None:
+    parser.add_argument("--reference", default=None, help=f"{text} (default: {rule})")
 
 
 def add_seeds(parser, default: int, text: str = "seeds per model") -> None:

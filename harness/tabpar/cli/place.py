@@ -24,7 +24,9 @@ def add_parser(subparsers) -> None:
     place.add_argument("--suite", default=None,
                        help="suite the task comes from (default: the reference's suite)")
     options.add_reference(place, f"published reference name ({options.reference_names()}) or "
-                                 f"a results folder")
+                                 f"a results folder",
+                          rule="the published reference whose holdout the predictions' row "
+                               "ids are, else the one named like --suite, else default")
     place.add_argument("--tolerance", type=float, default=DEFAULT_TOLERANCE,
                        help=f"gain share units under par still called at-baseline (default: "
                             f"{DEFAULT_TOLERANCE})")

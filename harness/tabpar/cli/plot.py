@@ -16,10 +16,10 @@ def add_parser(subparsers) -> None:
 
 
 def plot_suite_command(args) -> int:
-    from tabpar.evaluation.reference import Reference
+    from tabpar.evaluation.reference import Reference, reference_for
     from tabpar.report.plots import save_figure, suite_plot
 
     overlay = Reference(args.overlay) if args.overlay else None
-    path = save_figure(suite_plot(Reference(args.reference), overlay=overlay), args.out)
+    path = save_figure(suite_plot(Reference(args.reference or reference_for()), overlay=overlay), args.out)
     print(f"wrote {path}")
     return 0

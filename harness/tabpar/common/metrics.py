@@ -106,10 +106,41 @@ class Metric:
     perfect: float
     bounded: bool  # a bounded score (AUC, accuracy, R²) rather than an unbounded loss
     function: Callable
+    lowest: float = 0.0  # the range a score of this metric can take, ends included
+    highest: float = float("inf")
 
     def __call__(self, y_true, prediction, weights=None) -> float:
         """The score; ``weights`` are per-row counts or weights (the bootstrap's resampling)."""
         return self.function(y_true, prediction, weights)
+
+    def check_score(self, score, where: str = "") -> float:
+        """``score`` as a float; a UserError when it is not finite or outside the metric's range.
+
+        A value outside the range is a mistake, not a great result: an AUC of 71 is a
+        percentage, an RMSLE of -3 a sign slip.
+
+        Examples
+        --------
+        >>> METRICS["roc_auc"].check_score(0.71)
+        0.71
+        """
+        where = f" for {where}" if where else ""
+        try:
+            value = float(score)
+        except (TypeError, ValueError):
+            value = float("nan")
+        if not np.isfinite(value):
+            shown = score.item() if isinstance(score, np.generic) else score
+            raise UserError(f"The score {shown!r}{where} is not a finite number; give the holdout "
+                            f"score in {self.name}.")
+        if not self.lowest <= value <= self.highest:
+            low = "-inf" if self.lowest == -np.inf else f"{self.lowest:g}"
+            high = "inf" if self.highest == np.inf else f"{self.highest:g}"
+            hint = (f" (a percentage? give {value / 100:g})"
+                    if self.highest == 1 and 1 < value <= 100 else "")
+            raise UserError(f"The score {value:g}{where} is outside {self.name}'s range "
+                            f"{low} to {high}{hint}; give the holdout score in {self.name}.")
+        return value
 
     def better(self, a: float, b: float) -> bool:
         """True when score ``a`` is strictly better than ``b`` in this metric's direction."""
@@ -129,10 +160,10 @@ METRICS: dict[str, Metric] = {
         Metric("rmse", True, _REG, 0.0, False, _rmse),
         Metric("rmsle", True, _REG, 0.0, False, _rmsle),
         Metric("mae", True, _REG, 0.0, False, _mae),
-        Metric("r2", False, _REG, 1.0, True, _r2),
-        Metric("accuracy", False, _CLS, 1.0, True, _accuracy),
+        Metric("r2", False, _REG, 1.0, True, _r2, lowest=-np.inf, highest=1.0),
+        Metric("accuracy", False, _CLS, 1.0, True, _accuracy, highest=1.0),
         Metric("log_loss", True, _CLS, 0.0, False, _log_loss),
-        Metric("roc_auc", False, _CLS, 1.0, True, _roc_auc),
+        Metric("roc_auc", False, _CLS, 1.0, True, _roc_auc, highest=1.0),
     ]
 }
 

@@ -58,7 +58,21 @@ def write_split(out: Path, loaded: LoadedTask, split: Split, fmt: str, descripti
     return description
 
 
-def describe(task: Task, loaded: LoadedTask, split: Split, fmt: str) -> dict:
+def place_command(task: Task, suite: str | Path | None) -> str:
+    """The ``tabpar place`` command that places predictions for this split, verbatim."""
+    from tabpar.data.suites import list_builtin_suites
+
+    builtin = {path.stem for path in list_builtin_suites()}
+    if suite is None or str(suite) == "default":
+        return f"tabpar place {task.name} --predictions FILE"
+    if str(suite) in builtin:
+        return f"tabpar place {task.name} --suite {suite} --predictions FILE"
+    return (f"tabpar reference build --suite {suite} --out REFERENCE (once), then tabpar place "
+            f"{task.name} --suite {suite} --reference REFERENCE --predictions FILE")
+
+
+def describe(task: Task, loaded: LoadedTask, split: Split, fmt: str,
+             suite: str | Path | None = None) -> dict:
     positive = None
     if task.type == "binary":
         positive = (f"1 ({task.derive_target.label or task.derive_target.column + ' >= ' + str(task.derive_target.at_least)})"
@@ -78,19 +92,21 @@ def describe(task: Task, loaded: LoadedTask, split: Split, fmt: str) -> dict:
         "n_holdout": len(split.holdout), "notes": loaded.notes + split.notes,
         "files": {"train": f"train.{fmt}", "holdout": f"holdout.{fmt}"},
         "how_to_submit": (f"Write a CSV or Parquet file with columns row_id and prediction: "
-                          f"{submit}. Then: tabpar place {task.name} --predictions FILE"),
+                          f"{submit}. Then: {place_command(task, suite)}"),
         "target_transform": ("the metric is RMSLE: train on log1p(target) and submit "
                              "expm1(prediction)") if task.log_target else None,
     }
 
 
-def export_task(task: Task, out: str | Path, fmt: str = "csv") -> dict:
-    """Export ``task``'s split to ``out``; returns the task.json description."""
+def export_task(task: Task, out: str | Path, fmt: str = "csv",
+                suite: str | Path | None = None) -> dict:
+    """Export ``task`` (of ``suite``, named in the printed next step) to ``out``; returns the
+    task.json description."""
     if fmt not in FORMATS:
         raise UserError(f"Unknown export format '{fmt}'; use csv or parquet.")
     rows = load_and_split(task)
     return write_split(Path(out), rows.loaded, rows.split, fmt,
-                       describe(task, rows.loaded, rows.split, fmt))
+                       describe(task, rows.loaded, rows.split, fmt, suite))
 
 
 @dataclass
@@ -146,4 +162,4 @@ def export(task: str | Task, out: str | Path, suite: str | Path = "default",
         from tabpar.data.suites import load_suite
 
         task = load_suite(suite).task(task)
-    return ExportedSplit(folder=Path(out), description=export_task(task, out, fmt))
+    return ExportedSplit(folder=Path(out), description=export_task(task, out, fmt, suite))

@@ -25,10 +25,16 @@ from scipy import stats
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
-from tabpar.common.text import html_table
+from tabpar.common.text import count_of, format_p, html_table
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.reference import check_format, published_root
-from tabpar.evaluation.stats import N_BOOTSTRAP, bootstrap_scores, holm, signed_rank_p
+from tabpar.evaluation.stats import (
+    N_BOOTSTRAP,
+    bootstrap_scores,
+    holm,
+    signed_rank_p,
+    smallest_signed_rank_p,
+)
 from tabpar.execution.cache import load_arrays, prepare_task
 from tabpar.execution.provenance import library_versions, preparation_code_digest
 from tabpar.execution.runner import run_suite
@@ -92,9 +98,22 @@ class Comparison:
     def passed(self) -> bool:
         return not self.regression and not self.leakage
 
+    @property
+    def reach_note(self) -> str:
+        """A warning when too few tasks were compared for the suite-wide test to ever reach
+        significance ("" otherwise)."""
+        n = sum(t.delta is not None for t in self.tasks)
+        smallest = smallest_signed_rank_p(n)
+        if smallest < ALPHA:
+            return ""
+        return (f"with {count_of(n, 'task')} the smallest p the signed-rank test can reach is "
+                f"{smallest:g}, so it cannot flag a suite-wide change at {ALPHA:g}; only the "
+                f"per-task calls can (compare at least 6 tasks for a suite-wide test)")
+
     def to_dict(self) -> dict:
         d = asdict(self)
         d["passed"] = self.passed
+        d["reach_note"] = self.reach_note
         return d
 
     def to_frame(self) -> pd.DataFrame:
@@ -118,12 +137,13 @@ class Comparison:
                 continue
             band = f"[{t.low:+.3f}, {t.high:+.3f}]"
             flag = "  LEAKAGE" if t.leakage else ""
-            lines.append(f"  {t.task:<14}{t.delta:>+9.3f}  {band:<21}{t.p_holm:>10.3f}  "
+            lines.append(f"  {t.task:<14}{t.delta:>+9.3f}  {band:<21}{format_p(t.p_holm):>10}  "
                          f"{t.call}{flag}")
         med = "n/a" if self.median_delta is None else f"{self.median_delta:+.3f}"
-        p = "n/a" if self.p_value is None else f"{self.p_value:.3f}"
         lines.append(f"  wins {self.wins} · ties {self.ties} · losses {self.losses} · median "
-                     f"delta {med} · Wilcoxon p {p}")
+                     f"delta {med} · Wilcoxon p {format_p(self.p_value)}")
+        if self.reach_note:
+            lines.append(f"  {self.reach_note}")
         lines.append("  delta: the candidate's gain over the baseline as a share of the "
                      "baseline's gain over the naive floor (positive = better).")
         for item in self.leakage:
@@ -143,10 +163,11 @@ class Comparison:
                 rows.append(f"| {t.task} | – | – | – | {t.call}: {t.note} |")
             else:
                 rows.append(f"| {t.task} | {t.delta:+.3f} | [{t.low:+.3f}, {t.high:+.3f}] | "
-                            f"{t.p_holm:.3f} | {t.call}{' (leakage)' if t.leakage else ''} |")
+                            f"{format_p(t.p_holm)} | {t.call}{' (leakage)' if t.leakage else ''} |")
         text = str(self).splitlines()
+        summary = next(i for i, line in enumerate(text) if line.startswith("  wins "))
         return "\n".join([f"# tabpar compare: {self.candidate} vs {self.baseline}", "",
-                          text[0], ""] + rows + [""] + [line.strip() for line in text[-4:]]
+                          text[0], ""] + rows + [""] + [line.strip() for line in text[summary:]]
                          ) + "\n"
 
 
@@ -365,11 +386,11 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
     deltas = np.array([r.delta for r in valid])
     median = float(np.median(deltas)) if len(deltas) else None
     p_all = signed_rank_p(deltas, tolerance, np.array([r.se for r in valid]))
-    reasons = [f"{r.task} is worse by {r.delta:+.3f} (Holm p {r.p_holm:.3f})"
-               for r in valid if r.call == "worse"]
+    reasons = [f"{r.task} is worse by {abs(r.delta):.3f} in gain share (delta {r.delta:+.3f}, "
+               f"Holm p {format_p(r.p_holm)})" for r in valid if r.call == "worse"]
     if median is not None and p_all is not None and median < -tolerance and p_all < ALPHA:
-        reasons.append(f"median delta {median:+.3f} with Wilcoxon p {p_all:.3f} across "
-                       f"{len(deltas)} tasks")
+        reasons.append(f"median delta {median:+.3f} with Wilcoxon p {format_p(p_all)} across "
+                       f"{count_of(len(deltas), 'task')}")
     leakage = [f"{r.task}: the candidate {r.leakage}" for r in results if r.leakage]
     comparison = Comparison(
         candidate=cand_proc.name, baseline=base_name, suite=suite_obj.name, aa=aa,

@@ -22,7 +22,12 @@ from tabpar.common.text import format_number as fmt
 from tabpar.common.text import html_table
 from tabpar.data.sources import read_table
 from tabpar.data.suites import Task, load_suite
-from tabpar.evaluation.reference import Reference
+from tabpar.evaluation.reference import (
+    Reference,
+    published_names,
+    reference_for,
+    references_for_rows,
+)
 from tabpar.evaluation.stats import (
     bootstrap_scores,
     competition_rank,
@@ -36,6 +41,7 @@ from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
 VERDICTS = ("worse-than-naive", "below-baseline", "at-baseline", "above-baseline")
 DEFAULT_TOLERANCE = 0.05
+NOISE_DIGITS = 2  # a band's half-width is known to about two significant digits
 
 
 @dataclass
@@ -63,7 +69,9 @@ class Placement:
     difficulty_percentile: float | None
     message: str
     tolerance: float
-    reference: str
+    reference: str  # the reference's folder
+    reference_label: str = ""  # how the answer names it: "published reference 'quick'"
+    reference_reason: str = ""  # why this reference: asked for, recognised from the rows, ...
     model_means: dict = field(default_factory=dict)
     reference_scores: dict = field(default_factory=dict)  # model → per-seed scores (for plots)
     extra: dict = field(default_factory=dict)  # added by other answers (e.g. a leaderboard)
@@ -90,17 +98,20 @@ class Placement:
         diff = ("n/a" if self.difficulty_percentile is None
                 else f"{self.difficulty_percentile:.0f}")
         lines = [
-            f"{self.task}: {self.metric} {self.score:.4g} ({direction})  →  {self.verdict}",
+            f"{self.task}: {self.metric} {fmt(self.score)} ({direction})  →  {self.verdict}",
             f"  {self.message}",
             f"  beats {self.percentile:.0f}% of the {self.n_reference} reference runs "
             f"(percentile); rank {self.rank} of {self.n_reference + 1}",
-            f"  naive {self.naive:.4g} · par {self.par:.4g} ({self.par_model}) · best "
-            f"{self.best:.4g} ({self.best_model}) · gain share {gain_share}",
-            f"  noise ±{self.noise:.3g} (95% bootstrap over holdout rows"
+            f"  naive {fmt(self.naive)} · par {fmt(self.par)} ({self.par_model}) · best "
+            f"{fmt(self.best)} ({self.best_model}) · gain share {gain_share}",
+            f"  noise ±{fmt(self.noise, NOISE_DIGITS)} (95% bootstrap over holdout rows"
             f"{', paired with your predictions' if self.paired else ''}) · seed spread "
-            f"{self.seed_spread:.3g}",
-            f"  task difficulty percentile {diff} among the reference's tasks (higher = harder)",
+            f"{fmt(self.seed_spread, NOISE_DIGITS)}",
+            f"  task difficulty percentile {diff} among the reference's tasks (higher = harder: "
+            f"less of the room between naive and perfect taken by the best default)",
         ]
+        why = f" ({self.reference_reason})" if self.reference_reason else ""
+        lines.append(f"  placed on the {self.reference_label or self.reference}{why}")
         if self.gain_share is None and self.gain_share_note:
             lines.append(f"  gain share: {self.gain_share_note}")
         lines.extend(self.extra_lines)
@@ -182,6 +193,42 @@ def _check_fingerprint(ref: Reference, name: str, fingerprint: str, force: bool)
                         f"reference); rebuild the reference, or pass --force to place anyway.")
 
 
+def _file_row_ids(predictions) -> np.ndarray | None:
+    """The row ids of a predictions file, or None when it cannot be read as one (the full
+    check, with its error, comes when the file is scored)."""
+    try:
+        ids = pd.to_numeric(read_table(Path(predictions))["row_id"], errors="coerce")
+    except (UserError, KeyError, OSError, ValueError):
+        return None
+    return None if ids.isna().any() else ids.to_numpy()
+
+
+def choose_reference(task: str, reference: str | Path | None = None, suite: str | None = None,
+                     predictions: str | Path | None = None) -> tuple[str | Path, str]:
+    """The reference a placement uses and why, as (name or folder, reason).
+
+    ``reference`` given: that one, unless a predictions file's rows are the holdout of another
+    published reference (a UserError naming it). Otherwise the rows of ``predictions`` say which
+    published split they belong to; failing that, ``reference_for(suite)``: the published
+    reference named like the suite, else ``default``.
+    """
+    ids = _file_row_ids(predictions) if predictions is not None else None
+    recognised = references_for_rows(task, ids) if ids is not None else []
+    chosen = reference_for(suite)
+    if reference is not None:
+        # only a published name is checked: a results folder of the user's may hold any split
+        if recognised and str(reference) in published_names() and str(reference) not in recognised:
+            raise UserError(f"The rows of {predictions} are the holdout of task '{task}' in the "
+                            f"published reference '{recognised[0]}', not in '{reference}'; "
+                            f"place them with --reference {recognised[0]}.")
+        return reference, "as asked"
+    if recognised:
+        return (chosen if chosen in recognised else recognised[0],
+                "recognised from the predictions' row ids")
+    return chosen, ("the published reference of the suite" if suite is not None
+                    and chosen == str(suite) else "the default reference")
+
+
 def reference_task(task: str, suite: str | None = None,
                    reference: str | Path = "default") -> tuple[Reference, Task]:
     """The reference at ``reference`` and the definition of its task ``task`` (from ``suite``,
@@ -193,17 +240,21 @@ def reference_task(task: str, suite: str | None = None,
 
 def place_on_reference(task: str, score: float | None = None,
                        predictions: str | Path | None = None, suite: str | None = None,
-                       reference: str | Path = "default", tolerance: float = DEFAULT_TOLERANCE,
-                       force: bool = False) -> Placement:
+                       reference: str | Path | None = None,
+                       tolerance: float = DEFAULT_TOLERANCE, force: bool = False) -> Placement:
     """Place a holdout score (or a predictions file, scored here) on a suite task's reference.
 
-    See ``tabpar.place``, which also places on a leaderboard.
+    ``reference`` None: chosen by ``choose_reference``. See ``tabpar.place``, which also places
+    on a leaderboard.
     """
     if (score is None) == (predictions is None):
         raise UserError("Give exactly one of --score and --predictions.")
+    reference, reason = choose_reference(task, reference, suite, predictions)
     ref, definition = reference_task(task, suite, reference)
-    return place_task(definition, ref, score=score, predictions=predictions,
-                      tolerance=tolerance, force=force)
+    placement = place_task(definition, ref, score=score, predictions=predictions,
+                           tolerance=tolerance, force=force)
+    placement.reference_reason = reason
+    return placement
 
 
 def place_task(definition: Task, ref: Reference, score: float | None = None,
@@ -219,6 +270,8 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     metric = get_metric(tref.metric)
     paired = predictions is not None
     user = None
+    if not paired:  # checked before the slow part, so a mistyped score fails at once
+        score = metric.check_score(score, f"task '{task}'")
     # the holdout rows are needed for the bootstrap band even when only a score is given
     prepared = prepare_task(definition)
     _check_fingerprint(ref, task, prepared.fingerprint, force)
@@ -227,10 +280,7 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     if paired:
         user = read_predictions_file(Path(predictions), row_id, definition.type, task)
         score = metric(y, user)
-    if score is None or not np.isfinite(score):
-        raise UserError(f"The score {score!r} is not a finite number; give your holdout score "
-                        f"in the task's metric.")
-    score = float(score)
+    score = metric.check_score(score, f"task '{task}'")
 
     named = {"best": tref.best_model, "par": tref.par_model, "naive": "naive"}
     ref_preds = {role: _align(*ref.predictions(task, model), row_id, ref.folder)
@@ -254,9 +304,9 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         gain_share_note = ""
     else:
         gain_share = par_gain_share = None
-        gain_share_note = (f"the best default ({tref.best_model} {tref.best:.4g}) is not better than "
-                      f"naive ({tref.naive:.4g}) beyond the noise (±{best_noise:.3g}): nothing "
-                      f"to learn on this split")
+        gain_share_note = (f"the best default ({tref.best_model} {fmt(tref.best)}) is not "
+                           f"better than naive ({fmt(tref.naive)}) beyond the noise "
+                           f"(±{fmt(best_noise, NOISE_DIGITS)}): nothing to learn on this split")
 
     if bands["naive"][1] < 0:
         verdict = "worse-than-naive"
@@ -279,34 +329,47 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         best=tref.best, best_model=tref.best_model, par=tref.par, par_model=tref.par_model,
         gain_share=gain_share, gain_share_note=gain_share_note, noise=float(noise), seed_spread=tref.seed_spread,
         paired=paired, verdict=verdict, difficulty_percentile=difficulty_pct, message=message,
-        tolerance=tolerance, reference=str(ref.folder), model_means=dict(tref.means),
+        tolerance=tolerance, reference=str(ref.folder), reference_label=ref.label,
+        model_means=dict(tref.means),
         reference_scores={m: list(v) for m, v in tref.scores.items()})
 
 
+_CAUSES = {
+    # the mistakes that put a score under the naive floor, by what the predictions are
+    "regression": "predictions misaligned with row_id, a target transform not undone (log "
+                  "values submitted as prices), values in other units",
+    "classification": "predictions misaligned with row_id, hard labels given instead of "
+                      "probabilities, the probability of the other class",
+}
+
+
 def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance) -> str:
+    band = f"±{fmt(noise, NOISE_DIGITS)}"
+    regression = "regression" in metric.task_types
     if verdict == "worse-than-naive":
-        floor = "the mean" if "regression" in metric.task_types else "the class prior"
-        return (f"Worse than predicting {floor} ({fmt(tref.naive)}) by more than the noise (±{noise:.3g}): look for a bug "
-                f"before tuning anything — predictions misaligned with row_id, labels given "
-                f"instead of probabilities, a target transform not undone.")
+        floor = "the mean" if regression else "the class prior"
+        causes = _CAUSES["regression" if regression else "classification"]
+        return (f"Worse than predicting {floor} ({fmt(tref.naive)}) by more than the noise "
+                f"({band}): look for a bug before tuning anything — {causes}.")
     if verdict == "above-baseline":
         return (f"Better than the best default ensemble ({tref.best_model} {fmt(tref.best)}) by "
-                f"more than the noise (±{noise:.3g}). If this is surprising, check that no "
+                f"more than the noise ({band}). If this is surprising, check that no "
                 f"holdout information reached training.")
     beaten_by = sorted((m for m in DEFAULT_ENSEMBLES if m in tref.means
                         and metric.better(tref.means[m], score)),
                        key=lambda m: -float(metric.gain(tref.means[m], score)))
     if verdict == "below-baseline":
-        listing = ", ".join(f"{m} {fmt(tref.means[m])} (by {abs(tref.means[m] - score):.3g})"
-                            for m in beaten_by)
+        listing = ", ".join(f"{m} {fmt(tref.means[m])} (better by "
+                            f"{fmt(abs(tref.means[m] - score), 3)})" for m in beaten_by)
+        log_hint = ", an RMSLE task trained without log1p" if metric.name == "rmsle" else ""
         return (f"Gain share {gain_share:.2f} is more than {tolerance:g} under par's "
-                f"({tref.par_model} {fmt(tref.par)}), beyond the noise (±{noise:.3g}); beaten "
+                f"({tref.par_model} {fmt(tref.par)}), beyond the noise ({band}); beaten "
                 f"by {listing}. Usual causes: category codes learned separately on the holdout "
-                f"rows, an RMSLE task trained without log1p, rows shuffled against row_id, a "
-                f"leaky or random validation split during tuning.")
+                f"rows{log_hint}, rows shuffled against row_id, a leaky or random validation "
+                f"split during tuning.")
     if gain_share is None:
         return (f"At the baseline: {gain_share_note}; this task's holdout does not reward "
                 f"modelling, so a weak score here is the data's, not the pipeline's.")
     return (f"Within the standard baseline's range: gain share {gain_share:.2f} against par "
             f"{tref.par_model} {fmt(tref.par)} and best {tref.best_model} {fmt(tref.best)}, "
-            f"differences inside the noise (±{noise:.3g}) or the tolerance ({tolerance:g}).")
+            f"differences inside the noise ({band}) or the tolerance ({tolerance:g}).")

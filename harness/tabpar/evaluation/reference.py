@@ -19,6 +19,7 @@ from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.paths import builtin_folder, refuse_inside_package
 from tabpar.common.system import available_cores
+from tabpar.data.sources import close_matches
 from tabpar.execution.provenance import library_versions
 from tabpar.execution.runner import run_suite
 from tabpar.execution.store import (
@@ -49,6 +50,45 @@ def resolve_reference(reference: str | Path) -> Path:
     raise UserError(f"Unknown reference '{text}': it is neither a published reference "
                     f"({', '.join(names) or 'none published'}) nor a results folder with "
                     f"{RUN_FILE}.")
+
+
+def published_names() -> list[str]:
+    """The published references that ship with tabpar (``default``, ``quick``, ...)."""
+    folder = published_root() / "reference"
+    return sorted(p.name for p in folder.glob("*") if (p / RUN_FILE).is_file())
+
+
+def reference_for(suite: str | Path | None = None) -> str:
+    """The one default-reference rule every command follows: a built-in suite is placed on the
+    published reference of the same name, anything else (no suite, a suite file of your own)
+    on ``default``.
+
+    Examples
+    --------
+    >>> reference_for("quick"), reference_for(None), reference_for("my_suite.toml")
+    ('quick', 'default', 'default')
+    """
+    name = None if suite is None else str(suite)
+    return name if name in published_names() else "default"
+
+
+def references_for_rows(task: str, row_ids) -> list[str]:
+    """The published references whose holdout of ``task`` is exactly ``row_ids`` (none, one,
+    or several when a task is smaller than the quick suite's row cap).
+
+    An exported split's row ids say which suite it came from (the quick suite's holdout is a
+    sample of the default one's), so a predictions file can be placed without naming it.
+    """
+    wanted = set(int(i) for i in row_ids)
+    found = []
+    for name in published_names():
+        ref = Reference(name)
+        if task not in ref.tasks:
+            continue
+        ids, _ = ref.predictions(task, "naive")
+        if set(int(i) for i in ids) == wanted:
+            found.append(name)
+    return found
 
 
 def check_format(meta: dict, folder) -> None:
@@ -106,6 +146,14 @@ class Reference:
         self._cache: dict = {}
 
     @property
+    def label(self) -> str:
+        """How answers name this reference: "published reference 'quick'" or its folder."""
+        published = published_root() / "reference" / self.folder.name
+        if published.exists() and published.resolve() == self.folder.resolve():
+            return f"published reference '{self.folder.name}'"
+        return f"reference {self.folder}"
+
+    @property
     def suite(self) -> str:
         return self.meta.get("suite", "")
 
@@ -117,8 +165,10 @@ class Reference:
         if name in self._cache:
             return self._cache[name]
         if name not in self.tasks:
-            raise UserError(f"Task '{name}' is not in the reference {self.folder}; it has "
-                            f"{', '.join(self.tasks)}.")
+            near = close_matches(name, self.tasks).strip()
+            raise UserError(f"Task '{name}' is not in the {self.label}, whose tasks "
+                            f"are {', '.join(self.tasks)}" + (f": {near[0].lower()}{near[1:]}"
+                                                              if near else "."))
         rows = self.rows[self.rows["task"] == name].sort_values(["model", "seed"])
         metric = get_metric(rows["metric"].iloc[0])
         scores = {m: g["score"].astype(float).tolist() for m, g in rows.groupby("model")}

@@ -150,3 +150,19 @@ def signed_rank_p(deltas, tolerance: float, se=None) -> float | None:
     if np.count_nonzero(d) < 2:
         return None
     return float(stats.wilcoxon(d, zero_method="wilcox", alternative="two-sided").pvalue)
+
+
+def smallest_signed_rank_p(n: int) -> float:
+    """The smallest two-sided p-value the exact Wilcoxon signed-rank test can give with ``n``
+    non-zero deltas: every delta of one sign, ``2 / 2**n``.
+
+    Below about six tasks no result can reach 0.05, so a suite-wide "no difference" from a
+    handful of tasks says nothing; the comparison says so.
+
+    Examples
+    --------
+    >>> smallest_signed_rank_p(3), smallest_signed_rank_p(4), smallest_signed_rank_p(6)
+    (0.25, 0.125, 0.03125)
+    """
+    return 2.0 / 2.0 ** n if n > 0 else 1.0
+

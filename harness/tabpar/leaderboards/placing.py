@@ -10,6 +10,7 @@ from tabpar.common.metrics import get_metric
 from tabpar.evaluation.placement import (
     DEFAULT_TOLERANCE,
     Placement,
+    choose_reference,
     place_on_reference,
     reference_task,
 )
@@ -35,9 +36,11 @@ def place_on_leaderboard(score: float, leaderboard: Leaderboard | str,
     """
     board = (leaderboard if isinstance(leaderboard, Leaderboard)
              else load_leaderboard(leaderboard, store))
-    if score is None or not np.isfinite(score):
+    if board.metric is not None:
+        score = get_metric(board.metric).check_score(score, f"leaderboard '{board.name}'")
+    elif score is None or not np.isfinite(score):
         raise UserError(f"The score {score!r} is not a finite number; give your holdout score "
-                        f"in the task's metric.")
+                        f"in the leaderboard's units.")
     score = float(score)
     entries = board.scores
     # a Leaderboard has the direction-normalised gain these helpers need from a metric
@@ -105,7 +108,7 @@ def check_leaderboard_fits(board: Leaderboard, task, metric) -> None:
 
 
 def place(task: str, score: float | None = None, predictions: str | Path | None = None,
-          suite: str | None = None, reference: str | Path = "default",
+          suite: str | None = None, reference: str | Path | None = None,
           tolerance: float = DEFAULT_TOLERANCE, force: bool = False,
           leaderboard: Leaderboard | str | None = None) -> Placement:
     """Place a holdout score, or a predictions file scored here, on a suite task.
@@ -121,8 +124,10 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
         exported split (``tabpar export``); give exactly one of ``score`` and ``predictions``.
     suite : str, optional
         The suite defining the task (default: the reference's own).
-    reference : str or path
-        A published reference (``default``, ``quick``) or a results folder.
+    reference : str or path, optional
+        A published reference (``default``, ``quick``) or a results folder. When not given:
+        the published reference whose holdout the predictions' row ids are, else the one named
+        like ``suite``, else ``default`` (the same rule as every command).
     tolerance : float
         How far under par's 0-to-1 scale value (in those units) a score may fall before it is
         called below the baseline, when the noise allows.
@@ -146,15 +151,17 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
     'at-baseline'
     """
     board = None
+    if (score is None) == (predictions is None):
+        raise UserError("Give exactly one of --score and --predictions.")
+    reference, reason = choose_reference(task, reference, suite, predictions)
     if leaderboard is not None:  # checked before the slow part, so a mistake fails fast
-        if (score is None) == (predictions is None):
-            raise UserError("Give exactly one of --score and --predictions.")
         board = (leaderboard if isinstance(leaderboard, Leaderboard)
                  else load_leaderboard(leaderboard))
         ref, definition = reference_task(task, suite, reference)
         check_leaderboard_fits(board, definition, get_metric(ref.task(task).metric))
     placement = place_on_reference(task, score=score, predictions=predictions, suite=suite,
                                    reference=reference, tolerance=tolerance, force=force)
+    placement.reference_reason = reason
     if board is not None:
         numbers = place_on_leaderboard(placement.score, board)
         placement.attach(numbers, leaderboard_lines(numbers))

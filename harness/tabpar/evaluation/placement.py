@@ -334,6 +334,12 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         reference_scores={m: list(v) for m, v in tref.scores.items()})
 
 
+def failure_causes(metric_name: str) -> str:
+    """The usual mistakes behind a score under the naive floor, for this metric's task type."""
+    regression = "regression" in get_metric(metric_name).task_types
+    return _CAUSES["regression" if regression else "classification"]
+
+
 _CAUSES = {
     # the mistakes that put a score under the naive floor, by what the predictions are
     "regression": "predictions misaligned with row_id, a target transform not undone (log "
@@ -348,7 +354,7 @@ def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, t
     regression = "regression" in metric.task_types
     if verdict == "worse-than-naive":
         floor = "the mean" if regression else "the class prior"
-        causes = _CAUSES["regression" if regression else "classification"]
+        causes = failure_causes(metric.name)
         return (f"Worse than predicting {floor} ({fmt(tref.naive)}) by more than the noise "
                 f"({band}): look for a bug before tuning anything — {causes}.")
     if verdict == "above-baseline":

@@ -14,7 +14,7 @@ from pathlib import Path
 from tabpar.common.files import atomic_write_text
 from tabpar.common.text import format_number as fmt
 from tabpar.data.suites import Task
-from tabpar.evaluation.placement import DEFAULT_TOLERANCE, Placement
+from tabpar.evaluation.placement import DEFAULT_TOLERANCE, Placement, failure_causes
 from tabpar.execution.provenance import library_versions
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 from tabpar.owndata.difficulty import EASY_PERCENTILE, HARD_PERCENTILE
@@ -72,6 +72,7 @@ class Calibration:
     skipped: list = field(default_factory=list)
     failures: list = field(default_factory=list)
     warnings: list = field(default_factory=list)
+    given: list = field(default_factory=list)  # ["--score", "0.8"] or ["--predictions", FILE]
     budget_seconds: float | None = None
     elapsed_seconds: float = 0.0
     files: dict = field(default_factory=dict)
@@ -86,6 +87,7 @@ class Calibration:
             "n_train": self.n_train, "n_holdout": self.n_holdout, "metric": p.metric,
             "lower_is_better": p.lower_is_better, "score": p.score, "paired": p.paired,
             "score_verdict": self.score_verdict, "verdict_message": p.message,
+            "verdict_provisional": self.provisional, "verdict_rests_on": self.ensembles_run,
             "gain_share": self.gain_share, "gain_share_note": p.gain_share_note, "par_gain_share": self.par_gain_share,
             "noise": p.noise, "naive": p.naive, "par": p.par, "par_model": p.par_model,
             "best": p.best, "best_model": p.best_model, "baseline": self.baseline,
@@ -97,6 +99,18 @@ class Calibration:
             "budget_seconds": self.budget_seconds, "elapsed_seconds": self.elapsed_seconds,
             "files": self.files,
         }, default=str)))
+
+    @property
+    def ensembles_run(self) -> list[str]:
+        """The default ensembles the verdict rests on."""
+        return [m for m in DEFAULT_ENSEMBLES if m in self.baseline]
+
+    @property
+    def provisional(self) -> bool:
+        """True when the verdict rests on fewer than every default ensemble (and could change
+        once they run); worse-than-naive never depends on them."""
+        return (bool(missing_ensembles(self.ensembles_run))
+                and self.score_verdict != "worse-than-naive")
 
     def diagnostic(self, name: str):
         """The ``Diagnostic`` called ``name`` (e.g. ``"learning-curve"``), or None."""
@@ -148,8 +162,13 @@ class Calibration:
         lines += [f"  {item}" for item in inferred_items(self.inferred)]
         lines += [f"split: {self.split}"]
         lines += [f"note: {n}" for n in self.notes]
-        lines += ["",
-                  f"score {fmt(p.score)}  →  {self.score_verdict}",
+        lines += [""]
+        leak = leakage_headline(self.diagnostic("leakage"))
+        if leak:
+            lines += [f"[!] {leak}"]
+        lines += [f"score {fmt(p.score)}  →  {self.score_verdict}" + (
+                      f" (provisional: rests on {len(self.ensembles_run)} of "
+                      f"{len(DEFAULT_ENSEMBLES)} default ensembles)" if self.provisional else ""),
                   f"  gain share {gain_share}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
                   f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
                   f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
@@ -169,7 +188,7 @@ class Calibration:
         if self.files:
             lines += ["", f"wrote {', '.join(self.files[k] for k in self.files if k != 'run')}; "
                           f"jobs in {self.files.get('run')}"]
-        lines.append(f"rerun with nothing inferred: {rerun_command(self.data, self.task)}")
+        lines.append(f"rerun with nothing inferred: {rerun_command(self.data, self.task, self.given)}")
         return "\n".join(lines)
 
     def markdown(self) -> str:
@@ -180,7 +199,9 @@ class Calibration:
         out = [f"# Calibration: {Path(self.data).name} → `{self.task.target}`", "",
                f"- **score**: {p.metric} {fmt(p.score)} "
                f"({'lower' if p.lower_is_better else 'higher'} is better) → "
-               f"**{self.score_verdict}**",
+               f"**{self.score_verdict}**"
+               + (" (provisional: rests on " + ", ".join(self.ensembles_run) + ")"
+                  if self.provisional else ""),
                f"- **dataset**: **{self.dataset}** (difficulty {self.difficulty:.2f}, "
                f"percentile {pct} among {self.suite_tasks} suite tasks)",
                f"- **gain share**: {gain_share}; noise ±{fmt(p.noise, 3)} (95% bootstrap over "
@@ -204,7 +225,7 @@ class Calibration:
         out += ["", "## Files", ""]
         out += [f"- {k}: `{v}`" for k, v in self.files.items()]
         out += ["", "Rerun with nothing inferred:", "", "```",
-                rerun_command(self.data, self.task), "```", ""]
+                rerun_command(self.data, self.task, self.given), "```", ""]
         return "\n".join(out)
 
 
@@ -242,12 +263,13 @@ def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnos
         The verdict first, then one sentence per finding worth a look.
     """
     d = {x.name: x for x in diagnostics}
-    lead = _verdict(p, dataset, percentile, par_gain_share, n_holdout, tolerance)
-    notes = [_leakage_note(d.get("leakage"), p), _shift_note(d.get("shift")),
-             _optimism_note(d.get("split-optimism")),
+    # a suspected leak comes first: every number after it may be inflated by that column
+    leads = [leakage_headline(d.get("leakage")), _provisional_note(ensembles, p),
+             _verdict(p, dataset, percentile, par_gain_share, n_holdout, tolerance)]
+    notes = [_shift_note(d.get("shift")), _optimism_note(d.get("split-optimism")),
              _learning_curve_note(d.get("learning-curve"), p),
-             _duplicates_note(d.get("conflicting-duplicates")), _ensembles_note(ensembles, p)]
-    return " ".join([lead] + [note for note in notes if note])
+             _duplicates_note(d.get("conflicting-duplicates"))]
+    return " ".join(note for note in leads + notes if note)
 
 
 def _verdict(p: Placement, dataset: str, percentile: float | None, par_gain_share: float | None,
@@ -263,8 +285,7 @@ def _verdict(p: Placement, dataset: str, percentile: float | None, par_gain_shar
     if p.verdict == "worse-than-naive":
         return (f"The pipeline: {score} is worse than the naive floor ({fmt(p.naive)}) by more "
                 f"than the noise ({noise}), which no dataset explains; {base}. Look for "
-                f"predictions misaligned with row_id, labels given instead of probabilities, "
-                f"or a target transform not undone.")
+                f"{failure_causes(p.metric)}.")
     if p.gain_share is None:
         return (f"The data: the standard baseline does not beat the naive floor beyond the "
                 f"noise on this split (best {p.best_model} {fmt(p.best)} vs naive "
@@ -302,23 +323,46 @@ def _verdict(p: Placement, dataset: str, percentile: float | None, par_gain_shar
                f"columns" if where else "") + ".")
 
 
-def _leakage_note(leak, p: Placement) -> str | None:
-    """A column that alone reaches most of the full model's gain; a caution when the verdict
-    leans on a baseline that may use it."""
+def leakage_headline(leak) -> str | None:
+    """When a column alone reaches most of the full model's gain: the answer's first sentence,
+    since a leaked target inflates the baseline and every verdict measured against it."""
     if leak is None or not leak.flag:
         return None
     top = leak.numbers["columns"][0]
     suspects = leak.numbers["suspects"]
     names = ", ".join(repr(c) for c in suspects[:3])
-    reach = (f"{'alone reaches' if len(suspects) == 1 else 'each alone reach up to'} "
+    one = len(suspects) == 1
+    reach = (f"{'alone reaches' if one else 'each alone reach up to'} "
              f"{top['share']:.0%} of the full model's gain")
-    if p.verdict in ("below-baseline", "at-baseline"):
-        return (f"Caution: {names} {reach}; if that is a leak of the target (not "
-                f"simply a dominant column), the baseline above is inflated by it, "
-                f"and a weaker score may only mean the pipeline (rightly) leaves it "
-                f"out.")
-    return (f"Check {names} for leakage ({'it' if len(suspects) == 1 else 'they'}"
-            f" {reach}).")
+    return (f"Possible leak first: {names} {reach}. If {'it restates' if one else 'they restate'}"
+            f" the target or {'is' if one else 'are'} known only after it, drop "
+            f"{'it' if one else 'them'} (--drop) and run again, since the baseline and every "
+            f"verdict measured against it are inflated; if {'it is a' if one else 'they are'} "
+            f"legitimately dominant column{'' if one else 's'}, what follows stands.")
+
+
+def missing_ensembles(ensembles) -> list[str]:
+    """The default ensembles that did not run (budget, --models or a failure)."""
+    return [m for m in DEFAULT_ENSEMBLES if m not in ensembles]
+
+
+def _provisional_note(ensembles: list, p: Placement) -> str | None:
+    """Par and best are defined over every default ensemble: a verdict on fewer is provisional
+    (except worse-than-naive, which does not depend on them)."""
+    missing = missing_ensembles(ensembles)
+    if not missing or p.verdict == "worse-than-naive":
+        return None
+    consequence = {
+        "above-baseline": "the score may no longer beat the best",
+        "below-baseline": "the gap to par may shrink or grow",
+        "at-baseline": "the score could turn out below par",
+    }[p.verdict]
+    return (f"Provisional: this verdict rests on {len(ensembles)} of the "
+            f"{len(DEFAULT_ENSEMBLES)} default ensembles ({', '.join(ensembles)}); "
+            f"{', '.join(missing)} did not run. Par and best are defined over all "
+            f"{len(DEFAULT_ENSEMBLES)}: with the others best can only improve and par can move "
+            f"either way, so {consequence}; run without --budget (or with every model) for the "
+            f"final verdict.")
 
 
 def _shift_note(sh) -> str | None:
@@ -370,13 +414,3 @@ def _duplicates_note(dup) -> str | None:
              f"at least {dup.numbers['error_floor']:.1%} of rows misclassified")
     return (f"{dup.numbers['conflicting_share']:.1%} of rows have identical features "
             f"but different targets ({floor} over all rows), a floor no model passes.")
-
-
-def _ensembles_note(ensembles: list, p: Placement) -> str | None:
-    """Fewer default ensembles than the suite's: par and best could be better."""
-    missing = [m for m in DEFAULT_ENSEMBLES if m not in ensembles]
-    if missing and p.verdict in ("at-baseline", "above-baseline"):
-        return (f"The baseline ran {len(ensembles)} of the {len(DEFAULT_ENSEMBLES)} default "
-                f"ensembles ({', '.join(ensembles)}); with the others par and best could "
-                f"be better.")
-    return None

@@ -183,7 +183,9 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         suite_tasks=len(difficulties or {}), gain_share=placement.gain_share, par_gain_share=par_gain_share,
         baseline=_baseline(ref, task.name), diagnostics=diagnostics, answer=answer,
         n_holdout=prepared.n_holdout, n_train=prepared.n_train, seeds=seeds, skipped=skipped,
-        failures=failures, warnings=warnings, budget_seconds=budget)
+        failures=failures, warnings=warnings, budget_seconds=budget,
+        given=(["--predictions", str(predictions)] if predictions is not None
+               else ["--score", repr(float(score))]))
     calibration.files = {"report": str(out / "report.md"), "json": str(out / "report.json"),
                          "run": str(run_dir)}
     calibration.elapsed_seconds = round(time.monotonic() - started, 1)

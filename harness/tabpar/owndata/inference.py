@@ -236,7 +236,7 @@ def task_options(task: Task) -> list[str]:
     return args
 
 
-def rerun_command(data: str, task: Task) -> str:
+def rerun_command(data: str, task: Task, given=()) -> str:
     """The shell command that reruns ``tabpar calibrate`` on ``data`` with nothing inferred.
 
     Parameters
@@ -245,14 +245,17 @@ def rerun_command(data: str, task: Task) -> str:
         The table's path, as it should appear in the command.
     task : Task
         The task the options define.
+    given : sequence of str
+        What was placed: ``["--score", "0.81"]`` or ``["--predictions", "preds.csv"]``.
 
     Returns
     -------
     str
-        ``tabpar calibrate DATA --target ...``, every argument quoted for a POSIX shell.
+        ``tabpar calibrate DATA --target ... --score ...``, every argument quoted for a POSIX
+        shell, so the line works when pasted.
     """
     return f"tabpar calibrate {shlex.quote(data)} " + " ".join(
-        shlex.quote(a) for a in task_options(task))
+        shlex.quote(str(a)) for a in [*task_options(task), *given])
 
 
 def inferred_items(inferred: dict) -> list[str]:

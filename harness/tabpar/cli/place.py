@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import sys
 
 from tabpar.cli import options
 from tabpar.common.paths import LEADERBOARDS_ENV
@@ -49,6 +50,9 @@ def place_command(args) -> int:
         from tabpar.leaderboards.store import load_leaderboard
 
         board = load_leaderboard(args.leaderboard)
+    if sys.stderr.isatty():  # the first placement of a task loads and splits its data
+        print(f"  placing on {args.task}: reading the task's holdout rows for the noise band "
+              f"(cached after the first time)…", file=sys.stderr, flush=True)
     placement = place(args.task, score=args.score, predictions=args.predictions,
                       suite=args.suite, reference=args.reference, tolerance=args.tolerance,
                       force=args.force, leaderboard=board)

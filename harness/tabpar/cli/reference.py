@@ -12,8 +12,12 @@ def add_parser(subparsers) -> None:
     build = actions.add_parser("build", help="run every model × seeds on a suite and write "
                                              "provenance.json (resumes an interrupted build)")
     options.add_suite(build, options.DEFAULT_SUITE, "suite")
-    build.add_argument("--out", default=None,
-                       help="folder (default: results/reference/SUITE in the checkout)")
+    build.add_argument("--out", default=None, required=True,
+                       help="folder to write (results/reference/SUITE in a checkout rebuilds "
+                            "a published one)")
+    build.add_argument("--replace", action="store_true",
+                       help="rebuild a finished reference in --out (default: refuse; an "
+                            "interrupted build always resumes)")
     options.add_seeds(build, options.SEEDS)
     options.add_workers(build)
     options.add_quiet(build)
@@ -26,7 +30,7 @@ def reference_build_command(args) -> int:
 
     progress = not args.quiet and sys.stderr.isatty()
     result = build_reference(suite=args.suite, out=args.out, seeds=args.seeds,
-                             workers=args.workers, progress=progress)
+                             workers=args.workers, progress=progress, replace=args.replace)
     if not args.quiet:
         print(render_run(result))
     return 1 if result.failed else 0

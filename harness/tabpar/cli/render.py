@@ -18,7 +18,9 @@ def render_run(result) -> str:
         metric = get_metric(info["metric"])
         direction = "lower is better" if metric.lower_is_better else "higher is better"
         lines.append("")
-        lines.append(f"{name} — {info['metric']} ({direction}); {info['split']}")
+        units = info.get("definition", {}).get("units", "") if metric.in_target_units else ""
+        lines.append(f"{name} — {info['metric']}{' in ' + units if units else ''} "
+                     f"({direction}); {info['split']}")
         for note in info["notes"]:
             lines.append(f"  note: {note}")
         lines.append(f"  {'model':<8} {'holdout':>22} {'train':>10} {'fit s':>8}  seeds")
@@ -55,13 +57,22 @@ def render_run(result) -> str:
     return "\n".join(lines)
 
 
-def render_suite(suite, path) -> str:
-    """A suite's name and description, then one line per task."""
+def render_suite(suite, path, rows: dict | None = None) -> str:
+    """A suite's name and description, then each task: type, metric and direction, units,
+    rows (from the suite's published reference, when there is one), holdout, source and
+    description."""
+    rows = rows or {}
     lines = [f"{suite.name}: {suite.description}  ({path})"]
     for t in suite.tasks:
+        metric = get_metric(t.metric)
+        better = "lower" if metric.lower_is_better else "higher"
+        units = f" in {t.units}" if t.units and metric.in_target_units else ""
         cap = f", at most {t.max_rows:,} rows" if t.max_rows else ""
-        lines.append(f"  {t.name:<12} {t.type:<10} {t.metric:<8} {t.source}; "
-                     f"{t.holdout.describe()}{cap}")
+        size = (f"{rows[t.name][0] + rows[t.name][1]:,} rows" if t.name in rows
+                else "rows: not in a published reference")
+        lines.append(f"  {t.name:<12} {t.type:<10} {t.metric}{units} ({better} is better); "
+                     f"{size}; {t.holdout.describe()}{cap}")
+        lines.append(f"  {'':<12} {t.description or '(no description)'} [{t.source}]")
     return "\n".join(lines)
 
 
@@ -98,7 +109,7 @@ def render_import(board, requested_name) -> str:
     if requested_name is not None and requested_name != board.name:
         lines.append(f"  the name '{requested_name}' became '{board.name}' (letters, digits, "
                      f"_ - . only)")
-    lines.append(f"  files: {board.path.with_suffix('.parquet')} and {board.path}")
+    lines.append(f"  files: {board.path.parent / board.meta['entries_file']} and {board.path}")
     return "\n".join(lines)
 
 

@@ -113,6 +113,11 @@ class Metric:
         """The score; ``weights`` are per-row counts or weights (the bootstrap's resampling)."""
         return self.function(y_true, prediction, weights)
 
+    @property
+    def in_target_units(self) -> bool:
+        """True for scores measured in the target's own units (RMSE, MAE)."""
+        return self.name in ("rmse", "mae")
+
     def check_score(self, score, where: str = "") -> float:
         """``score`` as a float; a UserError when it is not finite or outside the metric's range.
 

@@ -101,6 +101,7 @@ class Task:
     max_rows: int | None = None
     sample_seed: int = 0
     description: str = ""
+    units: str = ""  # the target's units ("thousand riders"), shown beside RMSE and MAE
     base_dir: str = "."  # folder that relative csv:/parquet: paths resolve against
 
     @property
@@ -116,6 +117,8 @@ class Task:
         """Plain-data form of the task (JSON-safe), used for keys and provenance."""
         d = asdict(self)
         d.pop("base_dir")
+        if not d["units"]:  # tasks without units keep the keys they had before the field
+            d.pop("units")
         return json.loads(json.dumps(d, default=str))
 
     def key(self) -> str:
@@ -152,7 +155,7 @@ class Suite:
 _SUITE_KEYS = {"name", "description", "extends", "max_rows", "sample_seed"}
 _TASK_KEYS = {"name", "source", "target", "type", "metric", "positive", "drop", "dates",
               "ordinal", "derive_target", "assemble_date", "holdout", "max_rows", "sample_seed",
-              "description"}
+              "description", "units"}
 _HOLDOUT_KEYS = {"policy", "date", "fraction", "rows", "cutoff", "seed"}
 
 
@@ -372,7 +375,8 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
         derive_target=derived, assemble_date=assembled,
         max_rows=_positive_int(entry.get("max_rows"), "max_rows", where, path),
         sample_seed=_whole(entry.get("sample_seed", 0), "sample_seed", where, path),
-        description=str(entry.get("description", "")), base_dir=str(path.parent))
+        description=str(entry.get("description", "")), units=str(entry.get("units", "")),
+        base_dir=str(path.parent))
 
 
 def list_builtin_suites() -> list[Path]:

@@ -72,6 +72,7 @@ class Placement:
     reference: str  # the reference's folder
     reference_label: str = ""  # how the answer names it: "published reference 'quick'"
     reference_reason: str = ""  # why this reference: asked for, recognised from the rows, ...
+    units: str = ""  # the score's units where the metric is in the target's (RMSE, MAE)
     model_means: dict = field(default_factory=dict)
     reference_scores: dict = field(default_factory=dict)  # model → per-seed scores (for plots)
     extra: dict = field(default_factory=dict)  # added by other answers (e.g. a leaderboard)
@@ -98,7 +99,8 @@ class Placement:
         diff = ("n/a" if self.difficulty_percentile is None
                 else f"{self.difficulty_percentile:.0f}")
         lines = [
-            f"{self.task}: {self.metric} {fmt(self.score)} ({direction})  →  {self.verdict}",
+            f"{self.task}: {self.metric} {fmt(self.score)}{' ' + self.units if self.units else ''}"
+            f" ({direction})  →  {self.verdict}",
             f"  {self.message}",
             f"  beats {self.percentile:.0f}% of the {self.n_reference} reference runs "
             f"(percentile); rank {self.rank} of {self.n_reference + 1}",
@@ -330,6 +332,7 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         gain_share=gain_share, gain_share_note=gain_share_note, noise=float(noise), seed_spread=tref.seed_spread,
         paired=paired, verdict=verdict, difficulty_percentile=difficulty_pct, message=message,
         tolerance=tolerance, reference=str(ref.folder), reference_label=ref.label,
+        units=definition.units if metric.in_target_units else "",
         model_means=dict(tref.means),
         reference_scores={m: list(v) for m, v in tref.scores.items()})
 

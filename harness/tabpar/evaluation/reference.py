@@ -208,18 +208,24 @@ class Reference:
 
 
 def build_reference(suite: str = "default", out: str | Path | None = None, seeds: int = 3,
-                    workers: int | None = None, progress: bool = False, command: str = ""):
+                    workers: int | None = None, progress: bool = False, command: str = "",
+                    replace: bool = False):
     """Run every model of the zoo × ``seeds`` on ``suite`` into ``out`` and write provenance.
 
     ``out`` is required and must lie outside the installed package (the published references
     in a checkout are rebuilt with ``--out results/reference/SUITE``). Resumable: finished
-    jobs in ``out`` are kept. Returns the RunResult.
+    jobs of an interrupted build in ``out`` are kept. A finished reference (one with
+    ``provenance.json``) is only rebuilt in place with ``replace=True``. Returns the RunResult.
     """
     if out is None:
         raise UserError("Say where to write the reference with --out DIR (in a checkout, "
                         "results/reference/SUITE rebuilds a published one).")
     refuse_inside_package(out, "The reference folder")
     out = Path(out)
+    if (out / "provenance.json").is_file() and not replace:
+        raise UserError(f"{out} already holds a finished reference; pass --replace to rebuild "
+                        f"it there (its jobs are reused where nothing changed), or choose "
+                        f"another --out.")
     result = run_suite(suite=suite, seeds=seeds, out=out, workers=workers, progress=progress)
     frame = load_results(out)
     provenance = {

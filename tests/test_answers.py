@@ -212,3 +212,55 @@ def test_units_are_named_in_the_placement():
 
     answer = tabpar.place("chicago", score=2.5, reference="quick")
     assert str(answer).startswith("chicago: rmse 2.5 thousand riders (lower is better)")
+
+
+# --- plots that show what they claim ----------------------------------------------------------
+
+def test_placement_plot_band_is_around_the_score_and_the_floor_does_not_set_the_axis():
+    import tabpar
+    from matplotlib.patches import Polygon, Rectangle
+
+    from tabpar.report.plots import placement_plot
+
+    answer = tabpar.place("ames", score=0.16, reference="quick")
+    fig = placement_plot(answer)
+    ax = fig.axes[0]
+    bands = [p for p in ax.patches if isinstance(p, (Polygon, Rectangle))]
+    xs = [np.asarray(p.get_xy())[:, 0] if isinstance(p, Polygon) else
+          np.array([p.get_x(), p.get_x() + p.get_width()]) for p in bands]
+    assert any(np.isclose(x.min(), answer.score - answer.noise)
+               and np.isclose(x.max(), answer.score + answer.noise) for x in xs)
+    left, right = ax.get_xlim()
+    ensembles = [v for m in ("rf", "et", "hgb", "xgb", "lgbm") for v in answer.reference_scores[m]]
+    # the ensembles and the score take most of the axis, the far naive floor is off the scale
+    assert answer.naive > right
+    assert (max(ensembles + [answer.score]) - min(ensembles + [answer.score])) / (right - left) > 0.2
+
+
+def test_suite_plot_follows_its_points_and_defines_difficulty():
+    from tabpar.evaluation.reference import Reference
+    from tabpar.report.plots import suite_plot
+
+    ax = suite_plot(Reference("quick")).axes[0]
+    assert ax.get_xlim()[0] > 0.3  # not a fixed axis from 0 with the points crowded at 1
+    assert "difficulty = 1 −" in ax.get_xlabel()
+
+
+def test_forest_plot_legend_stays_off_the_points():
+    from tabpar.evaluation.comparison import Comparison, TaskComparison
+    from tabpar.report.plots import forest_plot
+
+    tasks = [TaskComparison(f"t{i}", d, d - 0.05, d + 0.05, 0.5, 0.9, "same", metric="rmse")
+             for i, d in enumerate([0.03, -0.02, 0.01, 0.04])]
+    fig = forest_plot(Comparison(candidate="c", baseline="b", suite="s", aa=False,
+                                 models=["rf"], seeds=1, tolerance=0.0, tasks=tasks, wins=0,
+                                 ties=4, losses=0, median_delta=0.02, p_value=0.6,
+                                 regression=False))
+    ax = fig.axes[0]
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    renderer = FigureCanvasAgg(fig).get_renderer()  # this figure's own canvas, no global backend
+    fig.draw(renderer)
+    legend_box = ax.get_legend().get_window_extent(renderer)
+    axes_box = ax.get_window_extent(renderer)
+    assert legend_box.y1 <= axes_box.y0  # below the axes, never over a task's row

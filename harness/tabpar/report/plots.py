@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from tabpar.common.errors import UserError
+from tabpar.common.text import format_number as fmt
 from tabpar.evaluation.reference import Reference, model_gain_shares
 from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
 
@@ -83,29 +84,51 @@ def placement_plot(placement, ax=None, leaderboard=None, leaderboard_ax=None):
             raise ValueError("placement_plot needs leaderboard_ax when ax is given with a "
                              "leaderboard.")
         leaderboard_panel(leaderboard_ax, leaderboard, placement.score)
+    lo, hi, floor_shown = _placement_range(placement, models)
     rng = np.random.default_rng(0)
     for i, model in enumerate(models):
         scores = np.asarray(placement.reference_scores[model], float)
         jitter = rng.uniform(-0.12, 0.12, len(scores))
-        ax.scatter(scores, i + jitter, s=36, color=PALETTE.get(model, "#444444"),
+        inside = (scores >= lo) & (scores <= hi)
+        ax.scatter(scores[inside], i + jitter[inside], s=36, color=PALETTE.get(model, "#444444"),
                    edgecolor="black", linewidth=0.5, zorder=3)
+        if (~inside).any():  # off the scale: a triangle at the edge, the value beside it
+            left = scores[~inside].mean() < lo
+            edge = lo if left else hi
+            ax.scatter([edge], [i], marker="<" if left else ">", s=60,
+                       color=PALETTE.get(model, "#444444"), edgecolor="black", linewidth=0.5,
+                       zorder=3, clip_on=False)
+            ax.annotate(fmt(float(scores[~inside].mean())), (edge, i), xytext=(9 if left else -9, 0),
+                        textcoords="offset points", va="center",
+                        ha="left" if left else "right", fontsize=8)
     ax.scatter([], [], s=36, color="white", edgecolor="black", linewidth=0.5,
-               label="reference runs (one point per seed)")
-    ax.axvspan(placement.best - placement.noise, placement.best + placement.noise,
-               color="#56B4E9", alpha=0.18, zorder=1,
-               label=f"best default ± noise (95% bootstrap, ±{placement.noise:.3g})")
+               label="reference runs (one point per seed; ◀ ▶ off the scale)")
+    # the band is the uncertainty of the placed score against the best default (paired when
+    # predictions were given), so it is drawn around the placed score, not the reference
+    ax.axvspan(placement.score - placement.noise, placement.score + placement.noise,
+               color="#999999", alpha=0.25, zorder=1,
+               label=f"placed score ± noise (95% bootstrap"
+                     f"{', paired with the best default' if placement.paired else ''}, "
+                     f"±{fmt(placement.noise, 2)})")
     ax.axvline(placement.best, color="#0072B2", linestyle="--", linewidth=1.2, zorder=2,
-               label=f"best default: {placement.best_model} {placement.best:.4g}")
-    ax.axvline(placement.naive, color="#999999", linestyle=":", linewidth=1.5, zorder=2,
-               label=f"naive floor {placement.naive:.4g}")
+               label=f"best default: {placement.best_model} {fmt(placement.best)}")
+    if floor_shown:
+        ax.axvline(placement.naive, color="#999999", linestyle=":", linewidth=1.5, zorder=2,
+                   label=f"naive floor {fmt(placement.naive)}")
+    else:
+        ax.plot([], [], color="#999999", linestyle=":",
+                label=f"naive floor {fmt(placement.naive)} (off the scale)")
     ax.axvline(placement.score, color=USER_COLOUR, linewidth=2.2, zorder=4,
-               label=f"placed score {placement.score:.4g} ({placement.verdict})")
+               label=f"placed score {fmt(placement.score)} ({placement.verdict})")
     ax.scatter([placement.score], [len(models) - 0.4], marker="v", s=90, color=USER_COLOUR,
                zorder=5)
+    ax.set_xlim(lo, hi)
     ax.set_yticks(range(len(models)))
     ax.set_yticklabels(models)
     ax.set_ylim(-0.6, len(models) - 0.1)
-    ax.set_xlabel(f"{placement.metric} on the holdout  ({_direction(placement.lower_is_better)})")
+    units = f" ({placement.units})" if getattr(placement, "units", "") else ""
+    ax.set_xlabel(f"{placement.metric}{units} on the holdout  "
+                  f"({_direction(placement.lower_is_better)})")
     ax.set_title(f"{placement.task}: score placed against the baseline reference\n"
                  f"beats {placement.percentile:.0f}% of {placement.n_reference} reference runs · "
                  f"verdict: {placement.verdict}", fontsize=11)
@@ -113,6 +136,24 @@ def placement_plot(placement, ax=None, leaderboard=None, leaderboard_ax=None):
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
               frameon=False)
     return fig
+
+
+def _placement_range(placement, models) -> tuple[float, float, bool]:
+    """(left, right, naive shown) of the placement plot's axis: the default ensembles, the best
+    and the placed score with its band always; the naive floor and other models only when they
+    do not squeeze those into a few pixels (within twice their span)."""
+    core = [placement.best, placement.score - placement.noise, placement.score + placement.noise]
+    core += [v for m in models if m in DEFAULT_ENSEMBLES for v in placement.reference_scores[m]]
+    lo, hi = float(np.min(core)), float(np.max(core))
+    span = max(hi - lo, 1e-9)
+    reach = (lo - 2 * span, hi + 2 * span)
+    others = [v for m in models if m not in DEFAULT_ENSEMBLES
+              for v in placement.reference_scores[m]] + [placement.naive]
+    near = [v for v in others if reach[0] <= v <= reach[1]]
+    floor_shown = reach[0] <= placement.naive <= reach[1]
+    lo, hi = min([lo] + near), max([hi] + near)
+    pad = 0.06 * max(hi - lo, 1e-9)
+    return lo - pad, hi + pad, floor_shown
 
 
 def leaderboard_panel(ax, leaderboard, score: float) -> None:
@@ -143,8 +184,8 @@ def leaderboard_panel(ax, leaderboard, score: float) -> None:
 
 
 def suite_plot(reference: Reference, overlay: Reference | None = None, ax=None):
-    """Per task, the gain share of each default ensemble; tasks ordered by difficulty (hardest at
-    the top).
+    """Per task, the gain share of each default ensemble; tasks grouped by type and ordered by
+    difficulty within each group (harder lower down), the difficulty printed beside each.
 
     Parameters
     ----------
@@ -174,39 +215,74 @@ def suite_plot(reference: Reference, overlay: Reference | None = None, ax=None):
                             f"run of '{reference.suite}'.")
         extra = model_gain_shares(overlay, against=reference)
         extra = extra[extra["model"].isin(DEFAULT_ENSEMBLES) & extra["task"].isin(table["task"])]
-    order = table.groupby("task")["difficulty"].first().sort_values().index.tolist()
-    fig, ax = new_axes(ax, 8.5, 0.5 * len(order) + 2.4)
-    low = -0.5  # a model far below naive would squash every other point
-    shown = pd.concat([table["gain_share"], extra["gain_share"]]) if extra is not None else table["gain_share"]
-    left = max(low, min(-0.1, float(np.nanmin(shown)) - 0.05))
-    right = max(1.1, float(np.nanmax(shown)) + 0.05)
+    types = {t: str(info.get("type", "")) for t, info in reference.meta.get("tasks", {}).items()
+             if isinstance(info, dict)}
+    difficulty = table.groupby("task")["difficulty"].first()
+    # grouped by task type (a type's tasks share a metric family), easiest first in each group
+    # (so, with the axis inverted, the hardest at the bottom of its group)
+    order = sorted(difficulty.index, key=lambda t: (_TYPE_ORDER.get(types.get(t, ""), 9),
+                                                    difficulty[t]))
+    fig, ax = new_axes(ax, 8.5, 0.32 * len(order) + 2.8)
+    shown = (pd.concat([table["gain_share"], extra["gain_share"]]) if extra is not None
+             else table["gain_share"])
+    # the axis follows the points: most gain shares sit near 1, and a fixed axis from 0 left
+    # most of the plot empty; the rare point far below is drawn at the left edge
+    low = max(-0.5, float(np.nanquantile(shown, 0.02)) - 0.05)
+    left = min(low, 0.9)
+    right = max(1.05, float(np.nanmax(shown)) + 0.03)
+    marker_size = 34 if len(order) <= 20 else 18
     for j, model in enumerate(DEFAULT_ENSEMBLES):
-        rows = np.arange(len(order)) + (j - 2) * 0.1
+        rows = np.arange(len(order)) + (j - 2) * 0.12
         sub = table[table["model"] == model].set_index("task").reindex(order)
-        ax.scatter(np.clip(sub["gain_share"], low, None), rows, s=34, color=PALETTE[model],
-                   edgecolor="black", linewidth=0.4, zorder=3, label=model)
+        ax.scatter(np.clip(sub["gain_share"], left, None), rows, s=marker_size,
+                   color=PALETTE[model], edgecolor="black", linewidth=0.4, zorder=3,
+                   label=model)
         if extra is not None:
             mine = extra[extra["model"] == model].set_index("task").reindex(order)
-            ax.scatter(np.clip(mine["gain_share"], low, None), rows, s=95, facecolor="none",
-                       edgecolor=PALETTE[model], linewidth=1.6, zorder=4)
+            ax.scatter(np.clip(mine["gain_share"], left, None), rows, s=3 * marker_size,
+                       facecolor="none", edgecolor=PALETTE[model], linewidth=1.6, zorder=4)
     if extra is not None:
         ax.scatter([], [], s=95, facecolor="none", edgecolor="black", linewidth=1.6,
                    label=f"hollow: {Path(overlay.folder).name}")
-    ax.axvline(0, color="#999999", linestyle=":", label="naive floor (gain share 0)")
+    if left <= 0:
+        ax.axvline(0, color="#999999", linestyle=":", label="naive floor (gain share 0)")
     ax.axvline(1, color="#0072B2", linestyle="--", label="best default (gain share 1)")
-    labels = [f"{t}  (difficulty {table[table['task'] == t]['difficulty'].iloc[0]:.2f})"
-              for t in order]
+    labels = [f"{t}  ({difficulty[t]:.2f})" for t in order]
     ax.set_yticks(range(len(order)))
-    ax.set_yticklabels(labels, fontsize=9)
+    ax.set_yticklabels(labels, fontsize=9 if len(order) <= 20 else 7)
+    ax.set_ylim(len(order) - 0.5, -0.5)
+    for kind, first, last in _groups([types.get(t, "") for t in order]):
+        if first > 0:
+            ax.axhline(first - 0.5, color="black", linewidth=0.6)
+        ax.annotate(kind or "other", (1.0, (first + last) / 2), xycoords=("axes fraction", "data"),
+                    xytext=(6, 0), textcoords="offset points", rotation=270, va="center",
+                    fontsize=9, color="#444444")
     ax.set_xlim(left, right)
+    clipped = float(np.nanmin(shown)) < left
     ax.set_xlabel("gain share = gain over naive / best default's gain  (better →"
-                  + (f"; under {low} drawn at {low})" if left <= low else ")"))
+                  + (f"; lower values drawn at {left:.2f}" if clipped else "") + ")\n"
+                  "in brackets: difficulty = 1 − the share of the room between naive and a "
+                  "perfect score that the best default takes (0 = solved, 1 = nothing learnt)",
+                  fontsize=8.5)
     ax.set_title(f"Default ensembles across suite '{reference.suite}'\n"
-                 f"(tasks ordered by difficulty, hardest at the top)", fontsize=11)
+                 f"grouped by task type; within a type, harder tasks lower down", fontsize=11)
     ax.grid(axis="x", alpha=0.3)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=4, fontsize=8,
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=4, fontsize=8,
               frameon=False)
     return fig
+
+
+_TYPE_ORDER = {"regression": 0, "binary": 1, "multiclass": 2}
+
+
+def _groups(kinds: list[str]):
+    """(kind, first index, last index) of each run of equal kinds."""
+    out, start = [], 0
+    for i in range(1, len(kinds) + 1):
+        if i == len(kinds) or kinds[i] != kinds[start]:
+            out.append((kinds[start], start, i - 1))
+            start = i
+    return out
 
 
 def forest_plot(comparison, ax=None):
@@ -249,5 +325,7 @@ def forest_plot(comparison, ax=None):
                  f"{' (A/A)' if comparison.aa else ''}\nwins {comparison.wins} · ties "
                  f"{comparison.ties} · losses {comparison.losses} · {verdict}", fontsize=11)
     ax.grid(axis="x", alpha=0.3)
-    ax.legend(loc="lower right", fontsize=8)
+    # below the axes: inside, the legend covered a task's point
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=4, fontsize=8,
+              frameon=False)
     return fig

@@ -264,3 +264,15 @@ def test_forest_plot_legend_stays_off_the_points():
     legend_box = ax.get_legend().get_window_extent(renderer)
     axes_box = ax.get_window_extent(renderer)
     assert legend_box.y1 <= axes_box.y0  # below the axes, never over a task's row
+
+
+def test_messages_show_plain_numbers_not_numpy_reprs(tmp_path, capsys):
+    folder = tmp_path / "split"
+    assert run_cli(["export", "diamonds", str(folder), "--suite", "quick"], capsys)[0] == 0
+    predictions = tmp_path / "mine.csv"
+    _median_predictions(folder, predictions)
+    frame = pd.read_csv(predictions)
+    frame.loc[3, "prediction"] = np.nan
+    frame.to_csv(predictions, index=False)
+    code, _, err = run_cli(["place", "diamonds", "--predictions", str(predictions)], capsys)
+    assert code == 2 and "(nan for row_id" in err and "np.float64" not in err

@@ -13,6 +13,7 @@ import pandas as pd
 from sklearn.model_selection import train_test_split
 
 from tabpar.common.errors import UserError
+from tabpar.common.text import plain
 from tabpar.data.sources import LoadedTask, load_task
 from tabpar.data.target import Target, encode_target
 
@@ -101,7 +102,7 @@ def split_rows(loaded: LoadedTask, target: Target) -> Split:
             found = np.unique(target.values[rows])
             if len(found) < 2:
                 raise UserError(f"The {side} rows of task '{task.name}' hold a single class "
-                                f"({target.classes[found[0]]!r}); change the holdout so both "
+                                f"({plain(target.classes[found[0]])!r}); change the holdout so both "
                                 f"sides see every class.")
         if len(np.unique(target.values[train])) < k:
             notes.append("some classes never appear in the training rows")

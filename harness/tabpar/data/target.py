@@ -7,6 +7,7 @@ import numpy as np
 import pandas as pd
 
 from tabpar.common.errors import UserError
+from tabpar.common.text import plain
 from tabpar.data.sources import LoadedTask
 
 
@@ -36,7 +37,7 @@ def encode_target(loaded: LoadedTask) -> Target:
             converted, row = as_numbers(series)
             if row is not None:
                 raise UserError(f"The regression {where} has a non-numeric value "
-                                f"{series.iloc[row]!r} at row {loaded.row_ids[row]}; use a numeric "
+                                f"{plain(series.iloc[row])!r} at row {loaded.row_ids[row]}; use a numeric "
                                 f"target or "
                                 f"type = 'binary'/'multiclass'.")
             series = converted
@@ -59,7 +60,7 @@ def encode_target(loaded: LoadedTask) -> Target:
         positive = task.positive
         matches = [v for v in present if v == positive or str(v) == str(positive)]
         if not matches:
-            raise UserError(f"The positive class {positive!r} of task '{task.name}' is not among "
+            raise UserError(f"The positive class {plain(positive)!r} of task '{task.name}' is not among "
                             f"the values of its target '{task.target}' "
                             f"({', '.join(map(repr, sorted(map(str, present))[:6]))}); set "
                             f"positive to one of them.")
@@ -67,7 +68,7 @@ def encode_target(loaded: LoadedTask) -> Target:
             raise UserError(f"The binary {where} has {len(present)} classes; use type = "
                             f"'multiclass' or derive a two-class target.")
         if len(present) < 2:
-            raise UserError(f"The {where} has a single class ({present[0]!r}); there is nothing "
+            raise UserError(f"The {where} has a single class ({plain(present[0])!r}); there is nothing "
                             f"to tell apart; choose a target with two classes.")
         # compared as text, as the suite file gives it; on the distinct values, then per row
         codes, uniques = pd.factorize(series)
@@ -76,7 +77,7 @@ def encode_target(loaded: LoadedTask) -> Target:
         return Target(values=is_positive[codes], classes=[others[0], matches[0]])
     classes = sorted(present, key=str)
     if len(classes) < 2:
-        raise UserError(f"The {where} has a single class ({classes[0]!r}); there is nothing to "
+        raise UserError(f"The {where} has a single class ({plain(classes[0])!r}); there is nothing to "
                         f"tell apart; choose a target with two or more classes.")
     index = {str(c): i for i, c in enumerate(classes)}
     codes, uniques = pd.factorize(series)

@@ -19,7 +19,7 @@ import pandas as pd
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.text import format_number as fmt
-from tabpar.common.text import html_table
+from tabpar.common.text import html_table, plain
 from tabpar.data.sources import read_table
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.reference import (
@@ -145,7 +145,7 @@ def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: 
     ids = pd.to_numeric(frame["row_id"], errors="coerce")
     if ids.isna().any() or (ids % 1 != 0).any():
         bad = frame["row_id"][ids.isna() | (ids % 1 != 0)].iloc[0]
-        raise UserError(f"{path} has a row_id that is not a whole number: {bad!r}.")
+        raise UserError(f"{path} has a row_id that is not a whole number: {plain(bad)!r}.")
     ids = ids.astype(np.int64).to_numpy()
     dup = pd.Series(ids).duplicated()
     if dup.any():
@@ -166,7 +166,7 @@ def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: 
     if bad.any():
         i = int(np.flatnonzero(bad.to_numpy())[0])
         raise UserError(f"{path} has a prediction that is missing, not numeric or infinite "
-                        f"({frame['prediction'].iloc[i]!r} for row_id {ids[i]}); fix it.")
+                        f"({plain(frame['prediction'].iloc[i])!r} for row_id {ids[i]}); fix it.")
     values = values.to_numpy(dtype=float)
     if task_type == "binary" and ((values < 0) | (values > 1)).any():
         raise UserError(f"{path} has predictions outside 0..1, but task '{task}' needs the "

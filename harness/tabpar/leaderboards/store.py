@@ -34,6 +34,7 @@ from tabpar.common.files import atomic_write_bytes, atomic_write_text
 from tabpar.common.metrics import Metric, get_metric
 from tabpar.common.paths import LEADERBOARDS_ENV as STORE_ENV
 from tabpar.common.paths import leaderboard_store
+from tabpar.common.text import plain
 from tabpar.data.sources import read_table
 from tabpar.evaluation.reference import published_root
 from tabpar.execution.provenance import tabpar_version
@@ -176,7 +177,7 @@ def validate_scores(frame: pd.DataFrame, column: str, where: str) -> np.ndarray:
     bad = values.isna().to_numpy()
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
-        kind = "missing" if pd.isna(raw.iloc[i]) else f"not a number ({raw.iloc[i]!r})"
+        kind = "missing" if pd.isna(raw.iloc[i]) else f"not a number ({plain(raw.iloc[i])!r})"
         raise UserError(f"The score in column '{column}' of {where} is {kind} at data row "
                         f"{i + 1}; fix or remove that entry.")
     values = values.to_numpy(dtype=float)

@@ -22,6 +22,7 @@ import numpy as np
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import available_cores
+from tabpar.common.text import plain
 from tabpar.data.suites import Suite
 from tabpar.evaluation.placement import (
     DEFAULT_TOLERANCE,
@@ -107,7 +108,7 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         raise UserError("Give exactly one of --score and --predictions (or --export-split DIR "
                         "to write the split first).")
     if score is not None and not (isinstance(score, (int, float)) and math.isfinite(score)):
-        raise UserError(f"--score {score!r} is not a finite number; give your holdout score in "
+        raise UserError(f"--score {plain(score)!r} is not a finite number; give your holdout score in "
                         f"the metric.")
     zoo_order(models)  # an unknown model fails before any work
     if isinstance(seeds, bool) or not isinstance(seeds, int) or seeds < 1:

@@ -144,6 +144,10 @@ class Comparison:
                      f"delta {med} · Wilcoxon p {format_p(self.p_value)}")
         if self.reach_note:
             lines.append(f"  {self.reach_note}")
+        if self.reused_baseline_jobs:
+            lines.append(f"  baseline: {count_of(self.reused_baseline_jobs, 'job')} reused from "
+                         f"the published reference '{self.suite}' (same data, code and "
+                         f"library versions), the rest run now")
         lines.append("  delta: the candidate's gain over the baseline as a share of the "
                      "baseline's gain over the naive floor (positive = better).")
         for item in self.leakage:

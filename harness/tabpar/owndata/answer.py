@@ -36,6 +36,11 @@ def _finite(value):
     return value
 
 
+def _reference_name(folder) -> str:
+    """How the text names the reference the difficulty came from: "reference 'default'"."""
+    return f"reference '{Path(folder).name}'" if folder else "suite reference"
+
+
 # --- the result ----------------------------------------------------------------------------
 
 @dataclass
@@ -173,8 +178,8 @@ class Calibration:
                   f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
                   f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
                   f"best default takes), "
-                  + (f"percentile {pct} among the {self.suite_tasks} tasks of the suite "
-                     f"reference (hard ≥ {HARD_PERCENTILE:.0f}, easy ≤ {EASY_PERCENTILE:.0f})"
+                  + (f"percentile {pct} among the {self.suite_tasks} tasks of the "
+                     f"{_reference_name(self.suite_reference)} (hard ≥ {HARD_PERCENTILE:.0f}, easy ≤ {EASY_PERCENTILE:.0f})"
                      if self.suite_tasks else "no suite reference to place it against"),
                   "",
                   f"baseline on your split ({self.seeds} seed{'s' if self.seeds > 1 else ''} "

@@ -19,9 +19,10 @@ def add_parser(subparsers) -> None:
     given = place.add_mutually_exclusive_group(required=True)
     given.add_argument("--score", type=float, help="your holdout score in the task's metric")
     given.add_argument("--predictions",
-                       help="CSV/Parquet with columns row_id and prediction (for binary tasks "
-                            "the probability of the positive class), one row per holdout row "
-                            "of 'tabpar export'")
+                       help="CSV/Parquet with one row per holdout row of 'tabpar export': "
+                            "row_id and prediction (binary: the positive class's probability), "
+                            "or for multiclass row_id and one probability column per class, "
+                            "named as task.json lists them")
     place.add_argument("--suite", default=None,
                        help="suite the task comes from (default: the reference's suite)")
     options.add_reference(place, f"published reference name ({options.reference_names()}) or "

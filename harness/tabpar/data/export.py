@@ -72,7 +72,10 @@ def place_command(task: Task, suite: str | Path | None) -> str:
 
 
 def describe(task: Task, loaded: LoadedTask, split: Split, fmt: str,
-             suite: str | Path | None = None) -> dict:
+             suite: str | Path | None = None, classes=None) -> dict:
+    columns = [str(c) for c in (classes or [])]
+    layout = ("columns row_id and one per class" if task.type == "multiclass"
+              else "columns row_id and prediction")
     positive = None
     if task.type == "binary":
         positive = (f"1 ({task.derive_target.label or task.derive_target.column + ' >= ' + str(task.derive_target.at_least)})"
@@ -82,17 +85,22 @@ def describe(task: Task, loaded: LoadedTask, split: Split, fmt: str,
                       "its original units",
         "binary": f"one row per holdout row_id with 'prediction' = the probability that "
                   f"'{task.target}' is the positive class {positive!r}",
-        "multiclass": "place multiclass scores with --score",
+        "multiclass": f"one row per holdout row_id and one column per class, named "
+                      f"{', '.join(repr(c) for c in columns)}, holding that class's probability "
+                      f"(each row summing to 1)",
     }[task.type]
     return {
         "task": task.name, "source": task.source, "target": task.target, "type": task.type,
         "metric": task.metric, "lower_is_better": task.lower_is_better,
-        "positive_class": positive, "fingerprint": loaded.fingerprint,
+        "positive_class": positive, "classes": columns if task.type == "multiclass" else None,
+        "columns": (["row_id", *columns] if task.type == "multiclass"
+                    else ["row_id", "prediction"]),
+        "fingerprint": loaded.fingerprint,
         "holdout": split.description, "n_train": len(split.train),
         "n_holdout": len(split.holdout), "notes": loaded.notes + split.notes,
         "files": {"train": f"train.{fmt}", "holdout": f"holdout.{fmt}"},
-        "how_to_submit": (f"Write a CSV or Parquet file with columns row_id and prediction: "
-                          f"{submit}. Then: {place_command(task, suite)}"),
+        "how_to_submit": (f"Write a CSV or Parquet file with {layout}: {submit}. Then: "
+                          f"{place_command(task, suite)}"),
         "target_transform": ("the metric is RMSLE: train on log1p(target) and submit "
                              "expm1(prediction)") if task.log_target else None,
     }
@@ -106,7 +114,8 @@ def export_task(task: Task, out: str | Path, fmt: str = "csv",
         raise UserError(f"Unknown export format '{fmt}'; use csv or parquet.")
     rows = load_and_split(task)
     return write_split(Path(out), rows.loaded, rows.split, fmt,
-                       describe(task, rows.loaded, rows.split, fmt, suite))
+                       describe(task, rows.loaded, rows.split, fmt, suite,
+                                rows.target.classes))
 
 
 @dataclass

@@ -19,9 +19,10 @@ import pandas as pd
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.text import format_number as fmt
-from tabpar.common.text import html_table, plain
+from tabpar.common.text import html_table
 from tabpar.data.sources import read_table
 from tabpar.data.suites import Task, load_suite
+from tabpar.evaluation.predictions import read_predictions_file
 from tabpar.evaluation.reference import (
     Reference,
     published_names,
@@ -135,49 +136,6 @@ class Placement:
                           caption=f"{self.task}: {self.verdict}")
 
 
-def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: str):
-    """The user's predictions aligned to ``row_id``; UserError for every kind of mismatch."""
-    frame = read_table(Path(path))
-    for col in ("row_id", "prediction"):
-        if col not in frame.columns:
-            raise UserError(f"{path} has no '{col}' column; it needs columns row_id and "
-                            f"prediction (see task.json from 'tabpar export').")
-    ids = pd.to_numeric(frame["row_id"], errors="coerce")
-    if ids.isna().any() or (ids % 1 != 0).any():
-        bad = frame["row_id"][ids.isna() | (ids % 1 != 0)].iloc[0]
-        raise UserError(f"{path} has a row_id that is not a whole number: {plain(bad)!r}.")
-    ids = ids.astype(np.int64).to_numpy()
-    dup = pd.Series(ids).duplicated()
-    if dup.any():
-        raise UserError(f"{path} lists row_id {ids[dup.to_numpy()][0]} more than once; give "
-                        f"each holdout row exactly one prediction.")
-    expected = set(row_id.tolist())
-    unknown = [i for i in ids if i not in expected]
-    if unknown:
-        raise UserError(f"{path} has row_id {unknown[0]}, which is not a holdout row of task "
-                        f"'{task}' (wrong task or a training row?); predict only the rows of "
-                        f"holdout.csv.")
-    missing = expected - set(ids.tolist())
-    if missing:
-        raise UserError(f"{path} lacks {len(missing):,} holdout rows of task '{task}' (e.g. "
-                        f"row_id {min(missing)}); predict every row of holdout.csv.")
-    values = pd.to_numeric(frame["prediction"], errors="coerce")
-    bad = values.isna() | ~np.isfinite(values.to_numpy(dtype=float, na_value=np.nan))
-    if bad.any():
-        i = int(np.flatnonzero(bad.to_numpy())[0])
-        raise UserError(f"{path} has a prediction that is missing, not numeric or infinite "
-                        f"({plain(frame['prediction'].iloc[i])!r} for row_id {ids[i]}); fix it.")
-    values = values.to_numpy(dtype=float)
-    if task_type == "binary" and ((values < 0) | (values > 1)).any():
-        raise UserError(f"{path} has predictions outside 0..1, but task '{task}' needs the "
-                        f"probability of the positive class.")
-    if task_type == "multiclass":
-        raise UserError(f"Task '{task}' is multiclass; place it with --score (predictions "
-                        f"files take one probability column, for binary tasks).")
-    order = pd.Series(values, index=ids)
-    return order.loc[row_id].to_numpy()
-
-
 def _align(ids, prediction, row_id, folder):
     """Reference predictions reordered to ``row_id``."""
     aligned = align_to(ids, prediction, row_id)
@@ -280,7 +238,8 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     arrays = load_arrays(prepared.folder)
     y, row_id = np.asarray(arrays["y_holdout"]), np.asarray(arrays["row_id"])
     if paired:
-        user = read_predictions_file(Path(predictions), row_id, definition.type, task)
+        user = read_predictions_file(Path(predictions), row_id, definition.type, task,
+                                     classes=prepared.classes)
         score = metric(y, user)
     score = metric.check_score(score, f"task '{task}'")
 

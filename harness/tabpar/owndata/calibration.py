@@ -24,11 +24,8 @@ from tabpar.common.metrics import get_metric
 from tabpar.common.system import available_cores
 from tabpar.common.text import plain
 from tabpar.data.suites import Suite
-from tabpar.evaluation.placement import (
-    DEFAULT_TOLERANCE,
-    place_task,
-    read_predictions_file,
-)
+from tabpar.evaluation.placement import DEFAULT_TOLERANCE, place_task
+from tabpar.evaluation.predictions import read_predictions_file
 from tabpar.evaluation.reference import Reference
 from tabpar.execution.cache import load_arrays, prepare_task
 from tabpar.execution.executors import connect_check
@@ -124,17 +121,14 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
                                       positive=positive, dates=dates, holdout=holdout,
                                       holdout_fraction=holdout_fraction,
                                       holdout_rows=holdout_rows, cutoff=cutoff, drop=drop)
-    if predictions is not None and task.type == "multiclass":
-        raise UserError(f"The target '{target}' is multiclass; --predictions takes one "
-                        f"prediction column (a value or a positive-class probability), so give "
-                        f"--score instead.")
     order = zoo_order(models, task.type)
     connect_check(scheduler, executor, None)  # after the data's checks, before any work
     say(f"preparing {task.name}")
     prepared = prepare_task(task)  # every load/split/prep mistake surfaces here, before OUT
     if predictions is not None:
         row_id = np.asarray(load_arrays(prepared.folder)["row_id"])
-        read_predictions_file(Path(predictions), row_id, task.type, task.name)
+        read_predictions_file(Path(predictions), row_id, task.type, task.name,
+                              classes=prepared.classes)
     difficulties, suite_folder, suite_note = suite_difficulties(reference)
     out = Path(out) if out is not None else (
         Path("runs") / f"calibrate-{task.name}-{datetime.now():%Y%m%d-%H%M%S}")

@@ -313,7 +313,7 @@ def export_split(data, target: str, out: str | Path, **options) -> dict:
         raise UserError(f"{Path(data).name} already has a column 'row_id', the name the export "
                         f"gives each row's position; rename it, or leave it out with --drop "
                         f"row_id.")
-    info = describe(task, loaded, split, "csv")
+    info = describe(task, loaded, split, "csv", classes=rows.target.classes)
     command = rerun_command(str(Path(data)), task) + " --predictions FILE"
     info["how_to_submit"] = (info["how_to_submit"].split(". Then:")[0]
                              + f". Then: {command}")

@@ -166,9 +166,9 @@ class Reference:
             return self._cache[name]
         if name not in self.tasks:
             near = close_matches(name, self.tasks).strip()
-            raise UserError(f"Task '{name}' is not in the {self.label}, whose tasks "
-                            f"are {', '.join(self.tasks)}" + (f": {near[0].lower()}{near[1:]}"
-                                                              if near else "."))
+            raise UserError(f"Task '{name}' is not in the {self.label}; choose one of its "
+                            f"tasks ({', '.join(self.tasks)})" + (f": {near[0].lower()}{near[1:]}"
+                                                                  if near else "."))
         rows = self.rows[self.rows["task"] == name].sort_values(["model", "seed"])
         metric = get_metric(rows["metric"].iloc[0])
         scores = {m: g["score"].astype(float).tolist() for m, g in rows.groupby("model")}

@@ -24,7 +24,6 @@ import textwrap
 from pathlib import Path
 
 import pytest
-
 import tabpar
 from tabpar.data.sources import load_source, load_task
 from tabpar.data.suites import load_suite

@@ -219,7 +219,6 @@ def test_units_are_named_in_the_placement():
 def test_placement_plot_band_is_around_the_score_and_the_floor_does_not_set_the_axis():
     import tabpar
     from matplotlib.patches import Polygon, Rectangle
-
     from tabpar.report.plots import placement_plot
 
     answer = tabpar.place("ames", score=0.16, reference="quick")
@@ -276,3 +275,24 @@ def test_messages_show_plain_numbers_not_numpy_reprs(tmp_path, capsys):
     frame.to_csv(predictions, index=False)
     code, _, err = run_cli(["place", "diamonds", "--predictions", str(predictions)], capsys)
     assert code == 2 and "(nan for row_id" in err and "np.float64" not in err
+
+
+def test_difficulty_is_placed_among_tasks_of_the_same_type():
+    from tabpar.owndata.difficulty import suite_difficulties
+
+    # the default suite has five binary and five regression tasks (suites/default.toml)
+    binary, folder, note = suite_difficulties("default", "binary")
+    assert sorted(binary) == ["attrition", "credit_data", "flights", "loans", "mlc_churn"]
+    assert note == ""
+    every, _, note = suite_difficulties("default", "multiclass")
+    assert len(every) == 10 and "0 multiclass tasks" in note
+
+
+def test_the_widest_published_reference_is_the_default(monkeypatch):
+    from tabpar.evaluation import reference
+
+    monkeypatch.setattr(reference, "published_names", lambda: ["default", "quick", "wide"])
+    assert reference.reference_for(None) == "wide"
+    assert reference.reference_for("quick") == "quick"
+    monkeypatch.setattr(reference, "published_names", lambda: ["default", "quick"])
+    assert reference.reference_for(None) == "default"

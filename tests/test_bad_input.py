@@ -26,8 +26,8 @@ none is real data.
 """
 from __future__ import annotations
 
-import importlib.util
 import functools
+import importlib.util
 import json
 import lzma
 import os
@@ -44,7 +44,6 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 import pytest
-
 import tabpar
 from tabpar.cli.main import main
 from tabpar.data.split import MIN_HOLDOUT_ROWS

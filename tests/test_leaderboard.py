@@ -13,12 +13,15 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats
-
 from tabpar.cli.main import main
 from tabpar.common.errors import UserError
-from tabpar.leaderboards.store import (import_leaderboard, list_leaderboards, load_leaderboard,
-                                 sanitise_name)
 from tabpar.leaderboards.placing import LEADERBOARD_KEYS, place, place_on_leaderboard
+from tabpar.leaderboards.store import (
+    import_leaderboard,
+    list_leaderboards,
+    load_leaderboard,
+    sanitise_name,
+)
 
 # synthetic, hand-checkable entries: a tie at 0.20
 ENTRIES = [0.30, 0.10, 0.20, 0.20]

@@ -7,7 +7,6 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from sklearn import metrics as skm
-
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import METRICS, get_metric
 

@@ -24,14 +24,14 @@ import pytest
 openml = pytest.importorskip("openml")
 requests = pytest.importorskip("requests")
 
-from tabpar.data import openml_source  # noqa: E402
+from openml.tasks import OpenMLClassificationTask, OpenMLRegressionTask, TaskType  # noqa: E402
 from tabpar.cli.main import main  # noqa: E402
 from tabpar.common.errors import UserError  # noqa: E402
-from tabpar.leaderboards.store import load_leaderboard  # noqa: E402
-from tabpar.leaderboards.openml_runs import pull_openml  # noqa: E402
+from tabpar.data import openml_source  # noqa: E402
 from tabpar.data.sources import load_source, load_task  # noqa: E402
 from tabpar.data.suites import load_suite  # noqa: E402
-from openml.tasks import OpenMLClassificationTask, OpenMLRegressionTask, TaskType  # noqa: E402
+from tabpar.leaderboards.openml_runs import pull_openml  # noqa: E402
+from tabpar.leaderboards.store import load_leaderboard  # noqa: E402
 
 CLS_ID, REG_ID, DATA_ID = 900001, 900002, 800001  # synthetic ids
 

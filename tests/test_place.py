@@ -11,15 +11,19 @@ import pandas as pd
 import pytest
 from scipy import stats
 from sklearn.ensemble import HistGradientBoostingRegressor
-from threadpoolctl import threadpool_limits
-
 from tabpar.cli.main import main
-from tabpar.data.export import export_task
 from tabpar.common.metrics import METRICS
-from tabpar.evaluation.stats import bootstrap_scores, competition_rank, half_width, percentile_of
+from tabpar.data.export import export_task
+from tabpar.data.suites import load_suite
+from tabpar.evaluation.stats import (
+    bootstrap_scores,
+    competition_rank,
+    half_width,
+    percentile_of,
+)
 from tabpar.leaderboards.placing import place
 from tabpar.procedure.baseline import BaselinePrep
-from tabpar.data.suites import load_suite
+from threadpoolctl import threadpool_limits
 
 
 @pytest.mark.parametrize("metric_name", ["rmse", "roc_auc"])
@@ -205,8 +209,8 @@ def test_placement_plot_has_labelled_elements(tmp_path):
 
 
 def test_suite_plot_svg_and_png(tmp_path):
-    from tabpar.report.plots import save_figure, suite_plot
     from tabpar.evaluation.reference import Reference
+    from tabpar.report.plots import save_figure, suite_plot
 
     ref = Reference("quick")
     fig = suite_plot(ref, overlay=ref)
@@ -216,8 +220,8 @@ def test_suite_plot_svg_and_png(tmp_path):
 
 def test_suite_plot_refuses_an_overlay_of_another_suite(tmp_path):
     from tabpar.common.errors import UserError
-    from tabpar.report.plots import suite_plot
     from tabpar.evaluation.reference import Reference
+    from tabpar.report.plots import suite_plot
 
     with pytest.raises(UserError, match="other holdouts"):
         suite_plot(Reference("default"), overlay=Reference("quick"))

@@ -26,7 +26,6 @@ from sklearn.linear_model import LinearRegression
 from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import OneHotEncoder, OrdinalEncoder
 from sklearn.utils.validation import check_is_fitted
-
 from tabpar.procedure.baseline import MISSING_SUFFIX, BaselinePrep
 from tabpar.procedure.calendar import CALENDAR_FIELDS, calendar_fields
 
@@ -697,8 +696,8 @@ def test_prepared_task_learns_only_from_training_rows(write_suite, tmp_path):
                           "target": target})
 
     def prepared(data: pd.DataFrame, tag: str):
-        from tabpar.execution.cache import load_arrays, prepare_task
         from tabpar.data.suites import load_suite
+        from tabpar.execution.cache import load_arrays, prepare_task
 
         data.to_csv(tmp_path / f"{tag}.csv", index=False)  # synthetic stand-in data
         path = write_suite(f"""

@@ -6,10 +6,9 @@ that against Python's datetime and ISO 8601). Frames here are synthetic stand-in
 import numpy as np
 import pandas as pd
 import pytest
-
 from tabpar.procedure.baseline import BaselinePrep
-from tabpar.procedure.equivalent import sklearn_equivalent
 from tabpar.procedure.calendar import CALENDAR_FIELDS
+from tabpar.procedure.equivalent import sklearn_equivalent
 
 
 def _frames(kind):

@@ -37,7 +37,6 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-
 import tabpar
 import tabpar.execution.store
 import tabpar.models.zoo

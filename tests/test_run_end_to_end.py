@@ -12,11 +12,15 @@ from importlib.metadata import version
 import numpy as np
 import pyarrow.parquet
 import pytest
-from sklearn import metrics as skm
-
 import tabpar
+from sklearn import metrics as skm
 from tabpar.execution.cache import load_arrays, prepare_task
-from tabpar.execution.store import JOBS_FILE, ResultsStore, read_job_rows, read_predictions
+from tabpar.execution.store import (
+    JOBS_FILE,
+    ResultsStore,
+    read_job_rows,
+    read_predictions,
+)
 from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
 
 SEEDS = 1  # conftest.QUICK_SEEDS

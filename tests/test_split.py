@@ -8,12 +8,11 @@ import numpy as np
 import pandas as pd
 import pytest
 from sklearn.model_selection import train_test_split
-
 from tabpar.common.metrics import DEFAULT_METRIC
 from tabpar.data.sources import LoadedTask
 from tabpar.data.split import split_rows
-from tabpar.data.target import encode_target
 from tabpar.data.suites import Holdout, Task, load_suite
+from tabpar.data.target import encode_target
 
 TIME_TASKS = [t.name for t in load_suite("quick").tasks if t.holdout.policy == "time"]
 

@@ -1,7 +1,6 @@
 """Candidate procedures for the compare tests (each a module:function a user could write)."""
 import numpy as np
 from sklearn.base import BaseEstimator, TransformerMixin
-
 from tabpar.procedure.baseline import BaselinePrep
 
 

@@ -70,7 +70,7 @@ def add_suite(parser, default: str, text: str) -> None:
     parser.add_argument("--suite", default=default, help=f"{text} (default: {default})")
 
 
-REFERENCE_RULE = ("the published reference named like --suite, else default")
+REFERENCE_RULE = ("the published reference named like --suite, else the widest published one")
 
 
 def add_reference(parser, text: str, rule: str = REFERENCE_RULE) -> None:

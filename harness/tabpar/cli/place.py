@@ -28,7 +28,8 @@ def add_parser(subparsers) -> None:
     options.add_reference(place, f"published reference name ({options.reference_names()}) or "
                                  f"a results folder",
                           rule="the published reference whose holdout the predictions' row "
-                               "ids are, else the one named like --suite, else default")
+                               "ids are, else the one named like --suite, else the widest "
+                               "published one")
     place.add_argument("--tolerance", type=float, default=DEFAULT_TOLERANCE,
                        help=f"gain share units under par still called at-baseline (default: "
                             f"{DEFAULT_TOLERANCE})")

@@ -129,7 +129,7 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         row_id = np.asarray(load_arrays(prepared.folder)["row_id"])
         read_predictions_file(Path(predictions), row_id, task.type, task.name,
                               classes=prepared.classes)
-    difficulties, suite_folder, suite_note = suite_difficulties(reference)
+    difficulties, suite_folder, suite_note = suite_difficulties(reference, task.type)
     out = Path(out) if out is not None else (
         Path("runs") / f"calibrate-{task.name}-{datetime.now():%Y%m%d-%H%M%S}")
     if (out / "report.json").exists():

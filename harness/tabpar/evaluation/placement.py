@@ -133,6 +133,10 @@ def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: 
     if ids.isna().any() or (ids % 1 != 0).any():
         bad = frame["row_id"][ids.isna() | (ids % 1 != 0)].iloc[0]
         raise UserError(f"{path} has a row_id that is not a whole number: {bad!r}.")
+    if (ids.abs() >= 2**53).any():  # beyond int64 it would wrap to another (negative) number
+        bad = frame["row_id"][ids.abs() >= 2**53].iloc[0]
+        raise UserError(f"{path} has row_id {bad!r}, far beyond any row of task '{task}'; "
+                        f"predict only the rows of holdout.csv.")
     ids = ids.astype(np.int64).to_numpy()
     dup = pd.Series(ids).duplicated()
     if dup.any():

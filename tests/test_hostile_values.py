@@ -367,3 +367,19 @@ def test_the_working_folder_is_on_sys_path_only_while_the_candidate_imports(tmp_
     found = importlib.machinery.PathFinder.find_spec("lightgbm")
     assert found is None or Path(found.origin).parent != tmp_path
     sys.modules.pop("my_procedure", None)
+
+
+def test_a_forest_in_a_worker_runs_with_the_threads_its_row_records(tmp_path, capfd):
+    """One job on two workers gets both cores (threads 2); in a worker process joblib's default
+    backend would quietly run the forest with n_jobs=1 (its warning, scikit-learn's
+    ensemble/_base.py, names that)."""
+    import tabpar
+    from tabpar.common.system import available_cores
+
+    suite = write_suite(tmp_path)
+    result = tabpar.run_suite(suite, models=["rf"], seeds=1, out=tmp_path / "out", workers=2)
+    err = capfd.readouterr().err
+    assert result.ok == 1
+    rows = _strict_rows(tmp_path / "out" / "jobs.jsonl")
+    assert rows[0]["threads"] == available_cores()  # the idle worker's cores go to the job
+    assert "setting n_jobs=1" not in err

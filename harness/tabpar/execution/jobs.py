@@ -8,6 +8,7 @@ from datetime import datetime, timezone
 from functools import lru_cache
 
 import numpy as np
+from joblib import parallel_config
 
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import release_freed_memory
@@ -68,7 +69,10 @@ def _fit_and_score(job: dict) -> dict:
         X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
         y_fit = np.log1p(y_train) if job["log_target"] else y_train
         model = build_model(job["model"], task_type, job["seed"], job["threads"])
-        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]):
+        # threads, not loky processes: a worker is a daemon process, where joblib's default
+        # backend silently runs a forest's n_jobs=2 with 1 while the row records 2
+        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]), \
+                parallel_config(backend="threading"):
             t0 = time.perf_counter()
             model.fit(X_train, y_fit)
             t1 = time.perf_counter()

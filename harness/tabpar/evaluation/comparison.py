@@ -280,9 +280,8 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
     models = [m for m in models if m != "naive"]  # the floor is computed directly
     if not models:
         raise UserError("--models needs at least one model other than naive.")
-    # user code runs in a worker process under the job time limit, before anything is written
     cand_proc, cand_errors = isolated_procedure(candidate, selected, job_timeout)
-    base_errors: dict = {}
+    reused, base_errors = 0, {}
     out = Path(out) if out is not None else Path("runs") / (
         f"compare-{suite_obj.name}-{datetime.now().strftime('%Y%m%d-%H%M%S')}")
     base_dir = Path(baseline) if (Path(baseline) / RUN_FILE).exists() else None
@@ -302,7 +301,6 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
                             f"{base_meta.get('suite')}.")
         base_name = f"{base_dir} ({base_meta.get('procedure', 'builtin')})"
         aa = base_meta.get("procedure", "builtin") == cand_proc.name
-        reused = 0
     else:
         base_proc, base_errors = isolated_procedure(baseline, selected, job_timeout)
         base_name = base_proc.name
@@ -327,9 +325,8 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
     if cand_run.interrupted:
         raise KeyboardInterrupt
     errors = {**base_errors, **cand_errors, **cand_run.task_errors}
-    if len(cand_run.task_errors) == len(selected):
-        first = next(iter(cand_run.task_errors.values()))
-        raise UserError(f"{first} (it failed on every task compared).")
+    if len(errors) == len(selected):
+        raise UserError(f"{next(iter(errors.values()))} (it failed on every task compared).")
     base_rows, cand_rows = load_results(base_dir), load_results(cand_dir)
     base_seeds = sorted(set(base_rows["seed"]))[:seeds]
     cand_seeds = list(range(offset, offset + seeds))

@@ -54,6 +54,10 @@ def _time_split(loaded: LoadedTask):
     n = len(positions)
     if hold.cutoff is not None:
         cutoff = pd.Timestamp(hold.cutoff)
+        if dates.dt.tz is None and cutoff.tzinfo is not None:
+            raise UserError(f"The holdout cutoff {hold.cutoff} of task '{task.name}' has a UTC "
+                            f"offset but its date column '{hold.date}' has none; write the "
+                            f"cutoff without an offset, on the dates' own clock.")
         if dates.dt.tz is not None and cutoff.tzinfo is None:
             cutoff = cutoff.tz_localize(dates.dt.tz)
         in_holdout = dates.iloc[positions] >= cutoff

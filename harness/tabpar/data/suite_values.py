@@ -45,25 +45,23 @@ def check_column_name(value, key, where, path) -> str:
     return value
 
 def check_cutoff(value, where, path) -> str:
-    """A holdout cutoff as ISO 8601 text: a date or a date-time without a UTC offset."""
+    """A holdout cutoff as ISO 8601 text: a date or a date-time, with or without a UTC offset
+    (``split`` checks the offset against the date column's own)."""
     import datetime as dt
 
     import pandas as pd
 
-    if isinstance(value, dt.time) or not isinstance(value, (str, dt.date)):
+    stamp = pd.NaT
+    if isinstance(value, (str, dt.date)):  # not a TOML time of day: that is no date
+        try:
+            stamp = pd.Timestamp(str(value))
+        except (ValueError, TypeError):
+            pass
+    if stamp is pd.NaT:
         raise UserError(f"The holdout cutoff {value!r} of {where} in {path} is not a date; write "
                         f"it as ISO 8601, e.g. cutoff = \"2016-01-01\".")
-    try:
-        stamp = pd.Timestamp(str(value))
-    except (ValueError, TypeError):
-        raise UserError(f"The holdout cutoff {value!r} of {where} in {path} is not a date; write "
-                        f"it as ISO 8601, e.g. cutoff = \"2016-01-01\".") from None
-    if stamp is pd.NaT or stamp.tzinfo is not None:
-        raise UserError(f"The holdout cutoff {value!r} of {where} in {path} "
-                        f"{'is not a date' if stamp is pd.NaT else 'has a UTC offset'}; write "
-                        f"it as a local date or date-time without an offset, e.g. cutoff = "
-                        f"\"2016-01-01\" (the dates' own clock is used).")
     return str(value)  # as before, so the keys of existing tasks do not change
+
 
 def check_ordinal(value, where, path) -> tuple:
     bad = (f"'ordinal' of {where} in {path} must map column names to lists of distinct "

@@ -21,7 +21,8 @@ def add_parser(subparsers) -> None:
         epilog=f"SPEC is '{BUILTIN}', a variant .toml file ([variant] with "
                f"{', '.join(VARIANT_KEYS)}), or module:function. A module:function is the only "
                f"way tabpar runs your code: it is imported from the working folder or an "
-               f"installed package and must return an unfitted scikit-learn transformer.")
+               f"installed package, runs in a worker process under --job-timeout (its prints "
+               f"go to stderr) and must return an unfitted scikit-learn transformer.")
     compare.add_argument("--candidate", required=True, metavar="SPEC",
                          help=f"the changed procedure ({BUILTIN}, variant.toml or "
                               f"module:function)")

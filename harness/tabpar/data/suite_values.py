@@ -3,6 +3,7 @@ with one sentence that names the field, the file and the fix. ``suites`` uses th
 field before a Task is made, so no unchecked value reaches the later stages."""
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 from tabpar.common.errors import UserError
@@ -11,12 +12,22 @@ SEED_LIMIT = 2**32  # NumPy and the model libraries take seeds 0 .. 2**32 - 1
 
 
 def check_keys(table: dict, allowed: set, where: str, path: Path) -> None:
+    """UserError for a field of ``table`` that is not in ``allowed``.
+
+    >>> check_keys({"name": "t"}, {"name", "source"}, "[[task]] t", Path("s.toml"))
+    """
     unknown = sorted(set(table) - allowed)
     if unknown:
         raise UserError(f"Unknown field '{unknown[0]}' in {where} of {path}; allowed fields are "
                         f"{', '.join(sorted(allowed))}.")
 
+
 def check_positive_int(value, key, where, path):
+    """None, or a whole number of at least 1 (UserError else).
+
+    >>> check_positive_int(3000, "max_rows", "[suite]", Path("s.toml"))
+    3000
+    """
     if value is None:
         return None
     if not isinstance(value, int) or isinstance(value, bool) or value < 1:
@@ -24,29 +35,51 @@ def check_positive_int(value, key, where, path):
                         f"not {value!r}.")
     return value
 
+
 def check_whole(value, key, where, path) -> int:
+    """A whole number, not text or a bool (UserError else).
+
+    >>> check_whole(0, "seed", "the holdout", Path("s.toml"))
+    0
+    """
     if not isinstance(value, int) or isinstance(value, bool):
         raise UserError(f"'{key}' in {where} of {path} must be a whole number, not {value!r}; "
                         f"write it without quotes, e.g. {key} = 0.")
     return value
 
+
 def check_seed(value, key, where, path) -> int:
-    """A random seed: a whole number from 0 to 2**32 - 1."""
+    """A random seed: a whole number from 0 to 2**32 - 1 (UserError else).
+
+    >>> check_seed(0, "sample_seed", "[suite]", Path("s.toml"))
+    0
+    """
     value = check_whole(value, key, where, path)
     if not 0 <= value < SEED_LIMIT:
         raise UserError(f"'{key}' in {where} of {path} is {value}, but a seed must be between 0 "
                         f"and {SEED_LIMIT - 1}; write one in that range, e.g. {key} = 0.")
     return value
 
+
 def check_column_name(value, key, where, path) -> str:
+    """One column name as text, not a list or a number (UserError else).
+
+    >>> check_column_name("sold_on", "date", "the holdout", Path("s.toml"))
+    'sold_on'
+    """
     if not isinstance(value, str) or not value:
         raise UserError(f"'{key}' in {where} of {path} must be one column name in quotes, not "
                         f"{value!r}.")
     return value
 
+
 def check_cutoff(value, where, path) -> str:
     """A holdout cutoff as ISO 8601 text: a date or a date-time, with or without a UTC offset
-    (``split`` checks the offset against the date column's own)."""
+    (``split`` checks the offset against the date column's own).
+
+    >>> check_cutoff("2016-01-01", "task t", Path("s.toml"))
+    '2016-01-01'
+    """
     import datetime as dt
 
     import pandas as pd
@@ -64,6 +97,11 @@ def check_cutoff(value, where, path) -> str:
 
 
 def check_ordinal(value, where, path) -> tuple:
+    """``ordinal`` as ((column, levels), ...): lists of distinct single values, in order.
+
+    >>> check_ordinal({"grade": ["low", "high"]}, "task t", Path("s.toml"))
+    (('grade', ('low', 'high')),)
+    """
     bad = (f"'ordinal' of {where} in {path} must map column names to lists of distinct "
            f"levels in order, e.g. ordinal = {{ grade = [\"low\", \"mid\", \"high\"] }}")
     if not isinstance(value, dict):
@@ -82,7 +120,13 @@ def check_ordinal(value, where, path) -> tuple:
         out.append((column, tuple(levels)))
     return tuple(out)
 
+
 def check_str_list(value, key, where, path) -> tuple[str, ...]:
+    """Column names as a tuple (one name alone is a list of one).
+
+    >>> check_str_list("sold_on", "dates", "task t", Path("s.toml"))
+    ('sold_on',)
+    """
     if value is None:
         return ()
     if isinstance(value, str):
@@ -116,8 +160,6 @@ def check_seconds(value, option: str):
     >>> check_seconds(2.5, "--job-timeout")
     2.5
     """
-    import math
-
     if value is None:
         return None
     if (not isinstance(value, (int, float)) or isinstance(value, bool) or not math.isfinite(value)
@@ -133,8 +175,6 @@ def check_tolerance(value, option: str = "--tolerance") -> float:
     >>> check_tolerance(0.01)
     0.01
     """
-    import math
-
     if (not isinstance(value, (int, float)) or isinstance(value, bool) or not math.isfinite(value)
             or value < 0):
         raise UserError(f"{option} must be a finite number of 0 or more, not {value!r}; e.g. "

@@ -25,12 +25,16 @@ from tabpar.procedure.variants import (
 
 def runs_user_code(spec: str) -> bool:
     """Whether a procedure SPEC names user code (``module:function``), not the built-in
-    procedure or a variant file."""
+    procedure or a variant file.
+
+    >>> runs_user_code("builtin"), runs_user_code("my_prep:make")
+    (False, True)
+    """
     spec = str(spec)
     return spec != BUILTIN and not spec.endswith(".toml")
 
 
-def prepare_in_worker(job: dict) -> dict:
+def _prepare_in_worker(job: dict) -> dict:
     """In a worker: prepare ``job["task"]`` with procedure ``job["spec"]`` into the cache.
 
     Returns the procedure's name and key, or ``error``: the sentence to show for the task.
@@ -50,7 +54,7 @@ def prepare_in_worker(job: dict) -> dict:
     return {"name": procedure.name, "key": procedure.key, "error": None}
 
 
-def warm_up() -> None:
+def _warm_up() -> None:
     """Import what preparing needs before the first task, so the time limit measures the
     user's code and the preparation alone (as a job's measures the job)."""
     import sklearn.base  # noqa: F401
@@ -71,6 +75,9 @@ def isolated_procedure(spec: str, tasks: list[Task], job_timeout: float | None =
     The built-in procedure and variant files are resolved here; user code is prepared task by
     task in a worker process (see the module docstring), each task within ``job_timeout``
     seconds (None: no limit). UserError when it fails on every task.
+
+    >>> isolated_procedure("builtin", [])[0].name
+    'builtin'
     """
     if not runs_user_code(spec):
         return resolve_procedure(spec), {}
@@ -85,7 +92,7 @@ def isolated_procedure(spec: str, tasks: list[Task], job_timeout: float | None =
             "error": f"Procedure '{spec}' {what} while preparing task '{job['task'].name}' "
                      f"({reason}); fix it, or give it more time with --job-timeout."}
 
-    LocalPool(prepare_in_worker, 1, job_timeout, initializer=warm_up).run(
+    LocalPool(_prepare_in_worker, 1, job_timeout, initializer=_warm_up).run(
         [{"spec": str(spec), "task": task} for task in tasks], on_result, on_lost)
     errors = {name: r["error"] for name, r in results.items() if r["error"] is not None}
     done = [r for r in results.values() if r["error"] is None]

@@ -118,7 +118,12 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
 def still_to_run(jobs: list[dict], rows) -> list[dict]:
     """The jobs without a finished row of the same data: a row counts only when its status is
     ok and its fingerprint is the job's (a folder whose run.json is gone cannot vouch for old
-    rows, so each row vouches for itself)."""
+    rows, so each row vouches for itself).
+
+    >>> job = {"task": "t", "model": "rf", "seed": 0, "fingerprint": "new"}
+    >>> len(still_to_run([job], [{**job, "status": "ok", "fingerprint": "old"}]))
+    1
+    """
     done = {(r["task"], r["model"], r["seed"], r.get("fingerprint")) for r in rows
             if r.get("status") == "ok"}
     return [j for j in jobs if (j["task"], j["model"], j["seed"], j["fingerprint"]) not in done]

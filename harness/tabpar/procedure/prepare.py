@@ -31,7 +31,12 @@ class PreparedArrays:
 
 def dense(output):
     """A transformer's output as a NumPy array or sequence: sparse matrices and frames
-    converted."""
+    converted.
+
+    >>> from scipy import sparse
+    >>> dense(sparse.eye(2)).tolist()
+    [[1.0, 0.0], [0.0, 1.0]]
+    """
     if hasattr(output, "toarray"):  # scipy sparse
         output = output.toarray()
     if hasattr(output, "to_numpy"):

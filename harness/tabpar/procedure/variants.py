@@ -104,7 +104,11 @@ def import_from_working_folder(module_name: str):
     """Import ``module_name`` with the working folder first on ``sys.path``, as ``python -m``
     would, for this import only: a file in the working folder named like one of tabpar's own
     dependencies (``lightgbm.py``) must never be imported by tabpar afterwards. Prints of the
-    module's top-level code go to stderr, so tabpar's stdout (``--json``) stays its own."""
+    module's top-level code go to stderr, so tabpar's stdout (``--json``) stays its own.
+
+    >>> import_from_working_folder("json").__name__
+    'json'
+    """
     saved = list(sys.path)
     sys.path.insert(0, os.getcwd())
     try:

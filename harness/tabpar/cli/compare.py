@@ -21,7 +21,8 @@ def add_parser(subparsers) -> None:
         epilog=f"SPEC is '{BUILTIN}', a variant .toml file ([variant] with "
                f"{', '.join(VARIANT_KEYS)}), or module:function. A module:function is the only "
                f"way tabpar runs your code: it is imported from the working folder or an "
-               f"installed package and must return an unfitted scikit-learn transformer.")
+               f"installed package, runs in a worker process under --job-timeout (its prints "
+               f"go to stderr) and must return an unfitted scikit-learn transformer.")
     compare.add_argument("--candidate", required=True, metavar="SPEC",
                          help=f"the changed procedure ({BUILTIN}, variant.toml or "
                               f"module:function)")
@@ -40,6 +41,8 @@ def add_parser(subparsers) -> None:
                               "runs/compare-SUITE-DATE-TIME)")
     options.add_workers(compare)
     options.add_executor_options(compare)
+    options.add_job_timeout(compare, "stop a job, or a module:function candidate preparing a "
+                                     "task, that runs longer (default: no limit)")
     compare.add_argument("--plot", default=None, help="also write the forest plot to FILE")
     compare.add_argument("--force", action="store_true",
                          help="compare even when a task's data changed since the baseline ran")
@@ -57,7 +60,7 @@ def compare_command(args) -> int:
                      tasks=args.tasks, models=args.models, seeds=args.seeds,
                      tolerance=args.tolerance, out=args.out, workers=args.workers,
                      progress=progress, executor=args.executor, scheduler=args.scheduler,
-                     force=args.force)
+                     force=args.force, job_timeout=args.job_timeout)
     figure = forest_plot(result)
     save_figure(figure, Path(result.out) / "forest.png")
     if args.plot:

@@ -11,6 +11,7 @@ from tabpar.cli import (
     compare,
     export,
     leaderboard,
+    options,
     place,
     plot,
     reference,
@@ -56,6 +57,7 @@ def main(argv=None) -> int:
         parser.print_help()
         return 2
     try:
+        options.check_options(args)
         return args.func(args)
     except UserError as exc:
         if args.debug:

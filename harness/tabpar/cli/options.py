@@ -1,7 +1,9 @@
 """Options several commands share, and the help phrases built from tabpar's registries."""
 from __future__ import annotations
 
+from tabpar.common.errors import UserError
 from tabpar.common.metrics import DEFAULT_METRIC, METRICS
+from tabpar.data.suite_values import check_seconds, check_seed_count, check_tolerance
 from tabpar.data.suites import list_builtin_suites
 from tabpar.models.zoo import MODELS
 
@@ -85,6 +87,10 @@ def add_workers(parser, text: str = "worker processes") -> None:
     parser.add_argument("--workers", type=int, default=None, help=text)
 
 
+def add_job_timeout(parser, text: str) -> None:
+    parser.add_argument("--job-timeout", type=float, default=None, metavar="SECONDS", help=text)
+
+
 def add_quiet(parser) -> None:
     parser.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
@@ -99,3 +105,25 @@ def add_models(parser, text: str) -> None:
 
 def add_tasks(parser, text: str) -> None:
     parser.add_argument("--tasks", type=csv_list, default=None, help=text)
+
+
+def check_options(args) -> None:
+    """Check the options every command shares before the command starts, so nothing is written
+    for a value that would be refused later: seeds, workers, time limits, tolerances and the
+    comma-separated lists (UserError naming the option and the fix).
+
+    >>> import argparse
+    >>> check_options(argparse.Namespace(seeds=3, tolerance=0.0, models=["rf"]))
+    """
+    if getattr(args, "seeds", None) is not None:
+        check_seed_count(args.seeds)
+    workers = getattr(args, "workers", None)
+    if workers is not None and workers < 1:
+        raise UserError(f"--workers must be at least 1, not {workers}; e.g. --workers 2.")
+    check_seconds(getattr(args, "job_timeout", None), "--job-timeout")
+    if getattr(args, "tolerance", None) is not None:
+        check_tolerance(args.tolerance)
+    for name in ("models", "tasks"):
+        if getattr(args, name, None) == []:  # given, but only commas and spaces
+            raise UserError(f"--{name} names no {name[:-1]}; give at least one, or leave "
+                            f"--{name} out for {'the whole zoo' if name == 'models' else 'all'}.")

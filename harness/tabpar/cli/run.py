@@ -24,9 +24,8 @@ def add_parser(subparsers) -> None:
                      help="parallel worker processes (default: all cores); each model gets "
                           "cores / workers threads")
     options.add_executor_options(run)
-    run.add_argument("--job-timeout", type=float, default=None, metavar="SECONDS",
-                     help="stop a job that runs longer and record it as 'timeout' (default: "
-                          "no limit)")
+    options.add_job_timeout(run, "stop a job that runs longer and record it as 'timeout' "
+                                 "(default: no limit)")
     options.add_quiet(run)
     options.add_json(run, "print one JSON object (out, jobs, ok, failed, tasks) instead of tables")
     run.set_defaults(func=run_command)

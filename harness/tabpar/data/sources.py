@@ -147,7 +147,9 @@ def _read_csv(path: Path, sep: str) -> pd.DataFrame:
                             f"column a unique name.")
         seen.add(name)
     try:
-        return pd.read_csv(path, sep=sep)
+        # low_memory=False: types guessed from whole columns, not chunk by chunk (a long
+        # column of numbers with a late text value would otherwise come back mixed)
+        return pd.read_csv(path, sep=sep, low_memory=False)
     except (pd.errors.ParserError, ValueError) as exc:
         first = str(exc).strip().splitlines()[0]
         raise UserError(f"{path} could not be read as CSV ({first}); check its quoting and "
@@ -238,6 +240,12 @@ def _unhashable(column: pd.Series) -> bool:
 def parse_dates(values: pd.Series, column: str, where: str, row_ids=None) -> pd.Series:
     """Parse a column as dates; UserError naming the first bad value and its row (the row's
     position in the source, ``row_ids[i]``, when given)."""
+    if pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_datetime64_any_dtype(values):
+        # pandas would read numbers as nanoseconds since 1970: garbage dates, no error
+        raise UserError(f"Date column '{column}' in {where} holds numbers (e.g. "
+                        f"{values.dropna().iloc[0] if values.notna().any() else 'none'}), not "
+                        f"dates; write them as ISO 8601 text (e.g. 2024-03-31), or build the "
+                        f"date from year and month columns with assemble_date.")
     parsed, problem, row = to_datetimes(values)
     shown = (lambda i: int(row_ids[i])) if row_ids is not None else (lambda i: i)
     if problem == "mixed time zones":
@@ -326,8 +334,13 @@ def load_task(task: Task) -> LoadedTask:
     assembled_from = (a.year, a.month) + ((a.day,) if a.day else ()) if a is not None else ()
     for col in assembled_from:
         _require_column(columns, col, "assemble_date", task)
+    if a is not None and a.name in columns:
+        raise UserError(f"The assemble_date name '{a.name}' of task '{task.name}' is already a "
+                        f"column of {task.source}; give the assembled date another name.")
     for col in task.dates:
         _require_column(columns + ([a.name] if a is not None else []), col, "date", task)
+    for col, _ in task.ordinal:
+        _require_column(columns, col, "ordinal", task)
     for col in task.drop:
         _require_column(columns + ([a.name] if a is not None else []), col, "drop", task)
     if task.target in task.drop:

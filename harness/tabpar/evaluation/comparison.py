@@ -26,6 +26,7 @@ from scipy import stats
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.text import count_of, format_p, html_table
+from tabpar.data.suite_values import check_seconds, check_seed_count, check_tolerance
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.reference import check_format, published_root
 from tabpar.evaluation.stats import (
@@ -36,6 +37,7 @@ from tabpar.evaluation.stats import (
     smallest_signed_rank_p,
 )
 from tabpar.execution.cache import load_arrays, prepare_task
+from tabpar.execution.isolation import isolated_procedure
 from tabpar.execution.provenance import library_versions, preparation_code_digest
 from tabpar.execution.runner import run_suite
 from tabpar.execution.store import (
@@ -47,7 +49,7 @@ from tabpar.execution.store import (
     read_predictions,
 )
 from tabpar.models.zoo import check_models
-from tabpar.procedure.variants import builtin, resolve_procedure
+from tabpar.procedure.variants import builtin
 
 AA_SEED_OFFSET = 1000
 DEFAULT_MODELS = ("rf", "lgbm")
@@ -286,18 +288,25 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
             models=None, seeds: int = 3, tolerance: float = 0.0, out=None,
             workers: int | None = None, progress: bool = False, n_boot: int | None = None,
             seed: int = 0, executor: str = "local", scheduler: str | None = None,
-            aa_seed_offset: int = AA_SEED_OFFSET, force: bool = False) -> Comparison:
+            aa_seed_offset: int = AA_SEED_OFFSET, force: bool = False,
+            job_timeout: float | None = None) -> Comparison:
     """Compare procedure ``candidate`` with ``baseline`` (a procedure SPEC or a results
-    folder) on ``suite``. Deltas are unit-free, positive = the candidate is better."""
-    if tolerance < 0:
-        raise UserError(f"--tolerance must be >= 0, not {tolerance}.")
+    folder) on ``suite``. Deltas are unit-free, positive = the candidate is better.
+
+    A module:function SPEC's code runs in a worker process, under ``job_timeout`` seconds per
+    task (None: no limit) like a job, with its prints sent to stderr. Ctrl-C or SIGTERM stops
+    the comparison with KeyboardInterrupt; finished jobs stay in ``out`` for a rerun."""
+    tolerance = check_tolerance(tolerance)
+    check_seconds(job_timeout, "--job-timeout")
+    check_seed_count(seeds, aa_seed_offset)
     suite_obj = load_suite(suite)
     selected = suite_obj.select(tasks)
     models = check_models(models or list(DEFAULT_MODELS))
     models = [m for m in models if m != "naive"]  # the floor is computed directly
     if not models:
         raise UserError("--models needs at least one model other than naive.")
-    cand_proc = resolve_procedure(candidate)
+    cand_proc, cand_errors = isolated_procedure(candidate, selected, job_timeout)
+    reused, base_errors = 0, {}
     out = Path(out) if out is not None else Path("runs") / (
         f"compare-{suite_obj.name}-{datetime.now().strftime('%Y%m%d-%H%M%S')}")
     base_dir = Path(baseline) if (Path(baseline) / RUN_FILE).exists() else None
@@ -317,28 +326,32 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
                             f"{base_meta.get('suite')}.")
         base_name = f"{base_dir} ({base_meta.get('procedure', 'builtin')})"
         aa = base_meta.get("procedure", "builtin") == cand_proc.name
-        reused = 0
     else:
-        base_proc = resolve_procedure(baseline)
+        base_proc, base_errors = isolated_procedure(baseline, selected, job_timeout)
         base_name = base_proc.name
         aa = base_proc.key == cand_proc.key
         base_dir = out / "baseline"
         reused = (_seed_baseline_from_reference(suite_obj.name, base_dir, selected, models,
                                                 seeds) if base_proc.key == builtin().key
                   else 0)
-        run_suite(suite_obj, tasks=[t.name for t in selected], models=models, seeds=seeds,
-                  out=base_dir, workers=workers, progress=progress, procedure=base_proc,
-                  executor=executor, scheduler=scheduler)
+        base_run = run_suite(suite_obj, tasks=[t.name for t in selected
+                                               if t.name not in base_errors],
+                             models=models, seeds=seeds, out=base_dir, workers=workers,
+                             progress=progress, procedure=base_proc, executor=executor,
+                             scheduler=scheduler, job_timeout=job_timeout)
+        if base_run.interrupted:  # never a report on part of the baseline
+            raise KeyboardInterrupt
     cand_dir = out / "candidate"
     offset = aa_seed_offset if aa else 0
-    cand_run = run_suite(suite_obj, tasks=[t.name for t in selected], models=models,
-                         seeds=seeds, out=cand_dir, workers=workers, progress=progress,
-                         procedure=cand_proc, seed_offset=offset, executor=executor,
-                         scheduler=scheduler)
-
-    if len(cand_run.task_errors) == len(selected):
-        first = next(iter(cand_run.task_errors.values()))
-        raise UserError(f"{first} (it failed on every task compared).")
+    cand_run = run_suite(suite_obj, tasks=[t.name for t in selected if t.name not in cand_errors],
+                         models=models, seeds=seeds, out=cand_dir, workers=workers,
+                         progress=progress, procedure=cand_proc, seed_offset=offset,
+                         executor=executor, scheduler=scheduler, job_timeout=job_timeout)
+    if cand_run.interrupted:
+        raise KeyboardInterrupt
+    errors = {**base_errors, **cand_errors, **cand_run.task_errors}
+    if len(errors) == len(selected):
+        raise UserError(f"{next(iter(errors.values()))} (it failed on every task compared).")
     base_rows, cand_rows = load_results(base_dir), load_results(cand_dir)
     base_seeds = sorted(set(base_rows["seed"]))[:seeds]
     cand_seeds = list(range(offset, offset + seeds))
@@ -346,10 +359,9 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
     results: list[TaskComparison] = []
     for task in selected:
         metric = get_metric(task.metric)
-        if task.name in cand_run.task_errors:
+        if task.name in errors:
             results.append(TaskComparison(task.name, None, None, None, None, None, "error",
-                                          metric=task.metric,
-                                          note=cand_run.task_errors[task.name]))
+                                          metric=task.metric, note=errors[task.name]))
             continue
         prepared = prepare_task(task)
         arrays = load_arrays(prepared.folder)

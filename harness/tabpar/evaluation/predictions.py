@@ -32,6 +32,10 @@ def _row_ids(frame: pd.DataFrame, path: Path, row_id: np.ndarray, task: str) -> 
     if ids.isna().any() or (ids % 1 != 0).any():
         bad = frame["row_id"][ids.isna() | (ids % 1 != 0)].iloc[0]
         raise UserError(f"{path} has a row_id that is not a whole number: {plain(bad)!r}.")
+    if (ids.abs() >= 2**53).any():  # beyond int64 it would wrap to another (negative) number
+        bad = frame["row_id"][ids.abs() >= 2**53].iloc[0]
+        raise UserError(f"{path} has row_id {plain(bad)!r}, far beyond any row of task "
+                        f"'{task}'; predict only the rows of holdout.csv.")
     ids = ids.astype(np.int64).to_numpy()
     dup = pd.Series(ids).duplicated()
     if dup.any():

@@ -24,7 +24,7 @@ from tabpar.procedure.variants import Procedure, builtin
 
 ARRAYS = ("X_train", "y_train", "X_holdout", "y_holdout", "row_id")
 META_KEYS = {"fingerprint", "classes", "feature_names", "n_train", "n_holdout",
-             "split_description", "notes", "procedure", "leakage"}
+             "split_description", "notes", "procedure", "leakage", "sha256"}
 
 
 @dataclass
@@ -73,7 +73,20 @@ def _read_meta(folder: Path) -> dict | None:
         return None
     if not all((folder / f"{name}.npy").is_file() for name in ARRAYS):
         return None
+    if meta["sha256"] != _arrays_digest(folder):  # arrays replaced or damaged since written
+        return None
+    meta.pop("sha256")
     return meta
+
+
+def _arrays_digest(folder: Path) -> str:
+    """SHA-256 of the entry's array files, in ``ARRAYS`` order."""
+    digest = hashlib.sha256()
+    for name in ARRAYS:
+        with open(folder / f"{name}.npy", "rb") as handle:
+            while chunk := handle.read(1 << 22):
+                digest.update(chunk)
+    return digest.hexdigest()
 
 
 def prepare_task(task: Task, cache_dir: Path | None = None,
@@ -107,7 +120,7 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     with atomic_folder(folder, replace=False) as tmp:
         for name in ARRAYS:
             np.save(tmp / f"{name}.npy", getattr(prepared, name))
-        atomic_write_text(tmp / "meta.json", json.dumps(meta))
+        atomic_write_text(tmp / "meta.json", json.dumps({**meta, "sha256": _arrays_digest(tmp)}))
     return PreparedTask(task=task, folder=folder, **meta)
 
 

@@ -8,6 +8,7 @@ from datetime import datetime, timezone
 from functools import lru_cache
 
 import numpy as np
+from joblib import parallel_config
 
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import release_freed_memory
@@ -68,16 +69,25 @@ def _fit_and_score(job: dict) -> dict:
         X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
         y_fit = np.log1p(y_train) if job["log_target"] else y_train
         model = build_model(job["model"], task_type, job["seed"], job["threads"])
-        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]):
+        # threads, not loky processes: a worker is a daemon process, where joblib's default
+        # backend silently runs a forest's n_jobs=2 with 1 while the row records 2
+        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]), \
+                parallel_config(backend="threading"):
             t0 = time.perf_counter()
             model.fit(X_train, y_fit)
             t1 = time.perf_counter()
             prediction = predict(model, X_hold, task_type, k, job["log_target"])
             t2 = time.perf_counter()
             train_prediction = predict(model, X_train, task_type, k, job["log_target"])
-        row.update(score=metric(y_hold, prediction), train_score=metric(y_train, train_prediction),
-                   fit_seconds=round(t1 - t0, 4), predict_seconds=round(t2 - t1, 4),
-                   status="ok")
+        score, train_score = metric(y_hold, prediction), metric(y_train, train_prediction)
+        row.update(fit_seconds=round(t1 - t0, 4), predict_seconds=round(t2 - t1, 4))
+        if not (np.isfinite(score) and np.isfinite(train_score)):
+            # e.g. RMSE of targets near 1e300 overflows: a number no placement can use
+            raise FloatingPointError(
+                f"the {job['metric']} score is not a finite number (holdout {score}, training "
+                f"{train_score}); the target's values are too large for the metric, so rescale "
+                f"the target")
+        row.update(score=float(score), train_score=float(train_score), status="ok")
     except Exception as exc:  # a model's failure is a result, not a crash of the run
         row.update(status="failed", error=f"{exc.__class__.__name__}: {exc}"[:2000])
         prediction = None
@@ -103,6 +113,20 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
                              "cost": MODELS[model].cost(t.type) * p.n_train
                              * len(p.feature_names) / 1e6})
     return jobs
+
+
+def still_to_run(jobs: list[dict], rows) -> list[dict]:
+    """The jobs without a finished row of the same data: a row counts only when its status is
+    ok and its fingerprint is the job's (a folder whose run.json is gone cannot vouch for old
+    rows, so each row vouches for itself).
+
+    >>> job = {"task": "t", "model": "rf", "seed": 0, "fingerprint": "new"}
+    >>> len(still_to_run([job], [{**job, "status": "ok", "fingerprint": "old"}]))
+    1
+    """
+    done = {(r["task"], r["model"], r["seed"], r.get("fingerprint")) for r in rows
+            if r.get("status") == "ok"}
+    return [j for j in jobs if (j["task"], j["model"], j["seed"], j["fingerprint"]) not in done]
 
 
 def lost_row(job: dict, reason: str, status: str) -> dict:

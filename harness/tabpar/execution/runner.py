@@ -20,6 +20,7 @@ import pandas as pd
 from tabpar.common.errors import UserError
 from tabpar.common.system import available_cores
 from tabpar.common.text import html_table
+from tabpar.data.suite_values import check_seconds, check_seed_count
 from tabpar.data.suites import Suite, load_suite
 from tabpar.execution.cache import PreparedTask, prepare_task
 from tabpar.execution.executors import DaskPool, LocalPool, connect_check
@@ -28,6 +29,7 @@ from tabpar.execution.jobs import (
     in_memory,
     lost_row,
     plan_jobs,
+    still_to_run,
     warm_imports,
 )
 from tabpar.execution.progress import Progress
@@ -164,16 +166,13 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
     suite = suite if isinstance(suite, Suite) else load_suite(suite)
     selected = suite.select(tasks)
     model_names = check_models(models)
-    if not isinstance(seeds, int) or seeds < 1:
-        raise UserError(f"--seeds must be a positive whole number, not {seeds!r}.")
+    check_seed_count(seeds, seed_offset)
     cores = available_cores()
     if workers is None:
         workers = cores
     if workers < 1:
         raise UserError(f"--workers must be at least 1, not {workers}.")
-    if job_timeout is not None and not job_timeout > 0:
-        raise UserError(f"--job-timeout must be a positive number of seconds, not "
-                        f"{job_timeout!r}.")
+    check_seconds(job_timeout, "--job-timeout")
     threads = 1 if executor == "dask" else max(1, cores // workers)
     if threads_per_model is not None:  # an explicit choice, e.g. on a machine shared with others
         if threads_per_model < 1:
@@ -198,9 +197,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         meta = _check_compatible(old_meta, suite, prepared, out, procedure.name)
         jobs = plan_jobs(prepared, model_names, list(range(seed_offset, seed_offset + seeds)),
                          threads)
-        done = {(r["task"], r["model"], r["seed"]) for r in store.rows()
-                if r.get("status") == "ok"}
-        todo = [j for j in jobs if (j["task"], j["model"], j["seed"]) not in done]
+        todo = still_to_run(jobs, store.rows())
         todo.sort(key=lambda j: -j["cost"])  # longest first balances the workers
         reused = len(jobs) - len(todo)
         if executor == "local" and threads_per_model is None and 0 < len(todo) < workers:

@@ -102,7 +102,8 @@ class ResultsStore:
 
     def append(self, row: dict) -> None:
         """Append one job's row as a single line, flushed and synced before returning."""
-        line = (json.dumps(row, sort_keys=True, default=_json_default) + "\n").encode("utf-8")
+        line = (json.dumps(row, sort_keys=True, default=_json_default,
+                           allow_nan=False) + "\n").encode("utf-8")
         with open(self.jobs_path, "ab") as handle:
             if handle.tell() > 0:
                 with open(self.jobs_path, "rb") as check:

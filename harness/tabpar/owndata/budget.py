@@ -123,6 +123,8 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
         result = run_suite(suite, models=[model], seeds=seeds, out=out_run, workers=workers,
                            executor=executor, scheduler=scheduler)
         seconds = time.monotonic() - t0
+        if result.interrupted:  # Ctrl-C/SIGTERM: stop here, never report the rest as run
+            raise KeyboardInterrupt
         failures += [{k: r.get(k) for k in ("model", "seed", "status", "error")}
                      for r in result.failures]
         ok = any(m == model for m in next(iter(result.tasks.values()))["models"])

@@ -11,8 +11,11 @@ the ``Calibration``, by ``tabpar.report.learning_curve.save_calibration_plots``.
 """
 from __future__ import annotations
 
+import contextlib
 import json
 import math
+import signal
+import threading
 import time
 from datetime import datetime
 from pathlib import Path
@@ -148,9 +151,10 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
     suite = Suite(name=SUITE_NAME, path=Path(task.source.split(":", 1)[1]),
                   description="tabpar calibrate on the user's own data", tasks=[task])
     run_dir = out / "run"
-    ran, skipped, failures, overrun = run_zoo(suite, order, seeds, run_dir, workers,
-                                              zoo_budget, started, rate, say,
-                                              executor=executor, scheduler=scheduler)
+    with _sigterm_as_interrupt():
+        ran, skipped, failures, overrun = run_zoo(suite, order, seeds, run_dir, workers,
+                                                  zoo_budget, started, rate, say,
+                                                  executor=executor, scheduler=scheduler)
     ensembles = [m for m in ran if m in DEFAULT_ENSEMBLES]
     if "naive" not in ran or not ensembles:
         raise RuntimeError(f"the naive floor or every default ensemble failed on {task.name}: "
@@ -186,6 +190,24 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
     calibration.elapsed_seconds = round(time.monotonic() - started, 1)
     calibration.write_reports()
     return calibration
+
+
+@contextlib.contextmanager
+def _sigterm_as_interrupt():
+    """SIGTERM raises KeyboardInterrupt, as Ctrl-C does, while the zoo runs (between models
+    too), so the command stops with exit 130 instead of finishing on part of the zoo."""
+    if threading.current_thread() is not threading.main_thread():
+        yield  # signal handlers can only be set in the main thread
+        return
+
+    def on_term(signum, frame):
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, on_term)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 def _baseline(ref: Reference, task_name: str) -> dict:

@@ -12,7 +12,7 @@ from tabpar.common.errors import UserError
 from tabpar.common.system import release_freed_memory
 from tabpar.data.split import SplitTask
 from tabpar.data.suites import Task
-from tabpar.procedure.variants import Procedure, builtin
+from tabpar.procedure.variants import Procedure, builtin, describe_failure
 
 
 @dataclass
@@ -29,12 +29,24 @@ class PreparedArrays:
     leakage: str | None  # why the procedure learns from holdout rows (None: it does not)
 
 
-def as_features(output, n_rows: int, procedure: Procedure, task: Task, side: str):
-    """A procedure's output as a float32 array; UserError when it is not numeric features."""
+def dense(output):
+    """A transformer's output as a NumPy array or sequence: sparse matrices and frames
+    converted.
+
+    >>> from scipy import sparse
+    >>> dense(sparse.eye(2)).tolist()
+    [[1.0, 0.0], [0.0, 1.0]]
+    """
     if hasattr(output, "toarray"):  # scipy sparse
         output = output.toarray()
     if hasattr(output, "to_numpy"):
         output = output.to_numpy()
+    return output
+
+
+def as_features(output, n_rows: int, procedure: Procedure, task: Task, side: str):
+    """A procedure's output as a float32 array; UserError when it is not numeric features."""
+    output = dense(output)
     try:
         array = np.asarray(output, dtype=np.float32)
     except (TypeError, ValueError):
@@ -57,12 +69,13 @@ def leakage_check(transformer, train, holdout, X_train, X_hold) -> str | None:
     holdout in reverse order gives the same rows, and transforming training rows again after
     the holdout gives what it gave before.
     """
-    reverse = np.asarray(transformer.transform(holdout.iloc[::-1]), dtype=np.float32)[::-1]
+    reverse = np.asarray(dense(transformer.transform(holdout.iloc[::-1])),
+                         dtype=np.float32)[::-1]
     if reverse.shape != X_hold.shape or not np.array_equal(reverse, X_hold, equal_nan=True):
         return ("its output for a holdout row depends on the other rows transformed with it, "
                 "so it learns from the holdout rows")
     head = train.iloc[: min(len(train), 500)]
-    again = np.asarray(transformer.transform(head), dtype=np.float32)
+    again = np.asarray(dense(transformer.transform(head)), dtype=np.float32)
     if again.shape != X_train[: len(head)].shape or not np.array_equal(
             again, X_train[: len(head)], equal_nan=True):
         return ("transforming the holdout rows changed its output for training rows, so it "
@@ -71,17 +84,27 @@ def leakage_check(transformer, train, holdout, X_train, X_hold) -> str | None:
 
 
 def check_finite(features, task: Task, row_ids) -> None:
-    """UserError for an infinite value (``row_ids``: each row's position in the source)."""
+    """UserError for an infinite value, or one beyond float32's range (``row_ids``: each row's
+    position in the source)."""
     for name in features.columns:  # one column at a time: no copy of the whole table
         column = features[name]
         if not pd.api.types.is_float_dtype(column):  # only floats can hold infinity
             continue
-        bad = np.isinf(column.to_numpy(dtype=np.float64, na_value=np.nan))
+        values = column.to_numpy(dtype=np.float64, na_value=np.nan)
+        bad = np.isinf(values)
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
             raise UserError(f"Column '{name}' of task '{task.name}' has an infinite value at "
                             f"row {int(row_ids[row])}; replace it with a finite number or leave "
                             f"it blank.")
+        # the features are float32: a larger magnitude would become infinite there
+        big = np.abs(values) > np.finfo(np.float32).max
+        if big.any():
+            row = int(np.flatnonzero(big)[0])
+            raise UserError(f"Column '{name}' of task '{task.name}' has {values[row]:.4g} at row "
+                            f"{int(row_ids[row])}, beyond the float32 range (±3.4e38) the "
+                            f"features are stored in; rescale the column (e.g. to other units) "
+                            f"or blank the value.")
 
 
 def feature_names(transformer, n_features: int) -> list[str]:
@@ -115,28 +138,29 @@ def prepare_split(task: Task, rows: SplitTask, procedure: Procedure | None = Non
     rows.loaded = None
     del features, loaded  # the task's rows now live in train and holdout only (memory)
     release_freed_memory()
-    transformer = procedure.build(task)
     check_leakage = procedure.key != builtin().key  # the built-in one is tested, not checked
     try:
+        transformer = procedure.build(task)
         X_train = as_features(transformer.fit_transform(train), len(train), procedure, task,
                               "training")
         if not check_leakage:
             train = None  # not needed again: free its rows before the holdout is prepared
         X_hold = as_features(transformer.transform(holdout), len(holdout), procedure, task,
                              "holdout")
+        if X_train.shape[1] != X_hold.shape[1]:
+            raise UserError(f"Procedure '{procedure.name}' made {X_train.shape[1]} features for "
+                            f"the training rows but {X_hold.shape[1]} for the holdout rows of "
+                            f"task '{task.name}'; it must learn its columns in fit.")
+        leakage = (leakage_check(transformer, train, holdout, X_train, X_hold) if check_leakage
+                   else None)
     except UserError:
         raise
-    except Exception as exc:
+    except (Exception, SystemExit) as exc:  # user code may also call sys.exit
         if not procedure.user_code:
             raise
-        raise UserError(f"Procedure '{procedure.name}' failed on task '{task.name}': "
-                        f"{exc.__class__.__name__}: {exc}") from None
-    if X_train.shape[1] != X_hold.shape[1]:
-        raise UserError(f"Procedure '{procedure.name}' made {X_train.shape[1]} features for the "
-                        f"training rows but {X_hold.shape[1]} for the holdout rows of task "
-                        f"'{task.name}'; it must learn its columns in fit.")
-    leakage = (leakage_check(transformer, train, holdout, X_train, X_hold) if check_leakage
-               else None)
+        raise UserError(f"Procedure '{procedure.name}' failed on task '{task.name}' "
+                        f"({describe_failure(exc)}); fix it so that fit and transform return "
+                        f"numeric features.") from None
     return PreparedArrays(X_train=X_train, X_holdout=X_hold,
                           y_train=target.values[split.train],
                           y_holdout=target.values[split.holdout], row_id=row_id,

@@ -12,10 +12,12 @@ returns numeric features. Three kinds of SPEC name one:
 """
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import importlib
 import inspect
 import json
+import os
 import sys
 from dataclasses import dataclass
 from pathlib import Path
@@ -88,6 +90,9 @@ def _variant(path: Path) -> Procedure:
             raise UserError(f"'{key}' in [variant] of {path} must be a {kind.__name__}, not "
                             f"{value!r}.")
         options[key] = value
+    if options.get("one_hot_max_levels", 0) < 0:
+        raise UserError(f"'one_hot_max_levels' in [variant] of {path} is "
+                        f"{options['one_hot_max_levels']}; write 0 (codes only) or more.")
     if options.get("fill", "median") not in ("median", "mean"):
         raise UserError(f"'fill' in [variant] of {path} must be 'median' or 'mean'.")
     name = str(table.get("name", path.stem))
@@ -95,31 +100,70 @@ def _variant(path: Path) -> Procedure:
     return Procedure(name=name, key=key, build=_builtin_build(options), user_code=False)
 
 
+def import_from_working_folder(module_name: str):
+    """Import ``module_name`` with the working folder first on ``sys.path``, as ``python -m``
+    would, for this import only: a file in the working folder named like one of tabpar's own
+    dependencies (``lightgbm.py``) must never be imported by tabpar afterwards. Prints of the
+    module's top-level code go to stderr, so tabpar's stdout (``--json``) stays its own.
+
+    >>> import_from_working_folder("json").__name__
+    'json'
+    """
+    saved = list(sys.path)
+    sys.path.insert(0, os.getcwd())
+    try:
+        with contextlib.redirect_stdout(sys.stderr):
+            return importlib.import_module(module_name)
+    finally:
+        sys.path[:] = saved
+
+
 def _callable(spec: str) -> Procedure:
     module_name, _, function_name = spec.partition(":")
     if not module_name or not function_name:
         raise UserError(f"'{spec}' is not a procedure SPEC; write builtin, a variant .toml "
                         f"path, or module:function.")
-    if "" not in sys.path and "." not in sys.path:
-        sys.path.insert(0, "")  # the working folder, as `python -m` would
     try:
-        module = importlib.import_module(module_name)
+        module = import_from_working_folder(module_name)
     except ImportError as exc:
+        if not (isinstance(exc, ModuleNotFoundError) and exc.name
+                and (module_name + ".").startswith(exc.name + ".")):
+            raise UserError(f"Module '{module_name}' of procedure '{spec}' failed while being "
+                            f"imported ({describe_failure(exc)}); fix its imports.") from None
         raise UserError(f"Cannot import module '{module_name}' for procedure '{spec}' ({exc}); "
                         f"run from the folder that holds it or install its package.") from None
+    except SyntaxError as exc:
+        raise UserError(f"Module '{module_name}' of procedure '{spec}' has a syntax error at "
+                        f"line {exc.lineno} of {exc.filename}; fix it.") from None
+    except (Exception, SystemExit) as exc:
+        raise UserError(f"Module '{module_name}' of procedure '{spec}' failed while being "
+                        f"imported ({describe_failure(exc)}); fix its top-level code.") from None
     function = getattr(module, function_name, None)
     if not callable(function):
+        found = sorted(n for n, v in vars(module).items()
+                       if inspect.isfunction(v) and not n.startswith("_"))
         raise UserError(f"Module '{module_name}' has no function '{function_name}' for "
-                        f"procedure '{spec}'.")
+                        f"procedure '{spec}'; name one of its functions "
+                        f"({', '.join(found) or 'none'}).")
     try:
         source = Path(inspect.getsourcefile(module)).read_bytes()
     except (TypeError, OSError):
         source = b""
     digest = hashlib.sha256(source).hexdigest()[:12]
-    takes_task = len(inspect.signature(function).parameters) >= 1
+    try:
+        takes_task = len(inspect.signature(function).parameters) >= 1
+    except (TypeError, ValueError):  # a builtin or C function without a signature
+        takes_task = False
 
     def build(task: Task):
-        made = function(task_columns(task)) if takes_task else function()
+        try:
+            with contextlib.redirect_stdout(sys.stderr):
+                made = function(task_columns(task)) if takes_task else function()
+        except (Exception, SystemExit) as exc:
+            raise UserError(f"Procedure '{spec}' failed while building its transformer for "
+                            f"task '{task.name}' ({describe_failure(exc)}); it must take one argument (a "
+                            f"TaskColumns) or none and return an unfitted transformer.") \
+                from None
         if not (hasattr(made, "fit") and hasattr(made, "transform")):
             raise UserError(f"Procedure '{spec}' returned {type(made).__name__}, not a "
                             f"transformer with fit and transform; return an unfitted "
@@ -127,6 +171,17 @@ def _callable(spec: str) -> Procedure:
         return made
 
     return Procedure(name=spec, key=f"callable:{spec}:{digest}", build=build, user_code=True)
+
+
+def describe_failure(exc: BaseException) -> str:
+    """What user code raised, in a few words for a message; ``sys.exit`` named as such.
+
+    >>> describe_failure(SystemExit(0))
+    'it called sys.exit(0)'
+    """
+    if isinstance(exc, SystemExit):
+        return f"it called sys.exit({exc.code!r})"
+    return f"{exc.__class__.__name__}: {exc}"[:300]
 
 
 def resolve_procedure(spec: str) -> Procedure:

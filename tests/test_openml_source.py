@@ -16,6 +16,7 @@ The connection probe is replaced too, so "reachable" and "offline" are both simu
 from __future__ import annotations
 
 import json
+from unittest.mock import create_autospec
 
 import numpy as np
 import pandas as pd
@@ -31,9 +32,14 @@ from tabpar.leaderboards.store import load_leaderboard  # noqa: E402
 from tabpar.leaderboards.openml_runs import pull_openml  # noqa: E402
 from tabpar.data.sources import load_source, load_task  # noqa: E402
 from tabpar.data.suites import load_suite  # noqa: E402
+from openml.datasets import OpenMLDataset  # noqa: E402
 from openml.tasks import OpenMLClassificationTask, OpenMLRegressionTask, TaskType  # noqa: E402
 
 CLS_ID, REG_ID, DATA_ID = 900001, 900002, 800001  # synthetic ids
+# the package's own functions, captured before any test replaces them (the stand-ins' specs)
+REAL = {(m.__name__, f): getattr(m, f) for m, f in (
+    (openml.tasks, "get_task"), (openml.datasets, "get_dataset"),
+    (openml.evaluations, "list_evaluations"))}
 
 
 def synthetic_rows(n=150):
@@ -45,21 +51,21 @@ def synthetic_rows(n=150):
     return X, y
 
 
-class SyntheticDataset:
-    """Stand-in for an OpenMLDataset: ``get_data`` as documented (4-tuple)."""
-
-    name, dataset_id, version = "synthetic-exam", DATA_ID, 1
-
-    def __init__(self, regression=False):
-        self.regression = regression
-
-    def get_data(self, target=None, include_row_id=False, include_ignore_attribute=False,
+def synthetic_dataset(regression=False):
+    """Stand-in for an OpenMLDataset, auto-specced from the real class: ``get_data`` as
+    documented (4-tuple), with the real method's signature."""
+    def get_data(target=None, include_row_id=False, include_ignore_attribute=False,
                  dataset_format="dataframe"):
         X, y = synthetic_rows()
-        if self.regression:
+        if regression:
             y = pd.Series(X["x_num"] * 2.0 + 1.0, name=target)
             X = X.drop(columns=["x_num"]).assign(x_other=np.arange(len(X), dtype=float))
         return X, y.rename(target), [False, True], list(X.columns)
+
+    dataset = create_autospec(OpenMLDataset, instance=True)
+    dataset.get_data.side_effect = get_data
+    dataset.name, dataset.dataset_id, dataset.version = "synthetic-exam", DATA_ID, 1
+    return dataset
 
 
 def synthetic_task(task_id):
@@ -98,26 +104,36 @@ def cache(tmp_path, monkeypatch):
 @pytest.fixture
 def server(monkeypatch, cache):
     """A reachable, synthetic OpenML server; ``calls`` records what was asked."""
-    calls = {"get_task": [], "get_dataset": [], "list_evaluations": []}
+    calls = {"get_task": [], "get_dataset": [], "list_evaluations": [], "cache_dirs": []}
 
     def get_task(task_id, *args, **kwargs):
         calls["get_task"].append((task_id, kwargs))
+        calls["cache_dirs"].append(openml.config.get_cache_directory())
         return synthetic_task(task_id)
 
     def get_dataset(dataset_id, *args, **kwargs):
         calls["get_dataset"].append(dataset_id)
-        return SyntheticDataset(regression=bool(calls["get_task"])
-                                and calls["get_task"][-1][0] == REG_ID)
+        return synthetic_dataset(regression=bool(calls["get_task"])
+                                 and calls["get_task"][-1][0] == REG_ID)
 
     def list_evaluations(function, **kwargs):
         calls["list_evaluations"].append((function, kwargs))
+        calls["cache_dirs"].append(openml.config.get_cache_directory())
         return synthetic_evaluations(function, kwargs["tasks"][0])
 
-    monkeypatch.setattr(openml.tasks, "get_task", get_task)
-    monkeypatch.setattr(openml.datasets, "get_dataset", get_dataset)
-    monkeypatch.setattr(openml.evaluations, "list_evaluations", list_evaluations)
+    # auto-specced from the real functions: a misspelt or missing argument fails the call
+    stand_in(monkeypatch, openml.tasks, "get_task", get_task)
+    stand_in(monkeypatch, openml.datasets, "get_dataset", get_dataset)
+    stand_in(monkeypatch, openml.evaluations, "list_evaluations", list_evaluations)
     monkeypatch.setattr(openml_source, "_reach", lambda host, port, timeout=5.0: None)
     return calls
+
+
+def stand_in(monkeypatch, module, name, side_effect):
+    """Replace ``module.name`` by a stand-in with the real function's signature."""
+    fake = create_autospec(REAL[module.__name__, name], side_effect=side_effect)
+    monkeypatch.setattr(module, name, fake)
+    return fake
 
 
 def go_offline(monkeypatch):
@@ -125,9 +141,9 @@ def go_offline(monkeypatch):
     def refuse(*args, **kwargs):
         raise AssertionError("the network was used")
 
-    monkeypatch.setattr(openml.tasks, "get_task", refuse)
-    monkeypatch.setattr(openml.datasets, "get_dataset", refuse)
-    monkeypatch.setattr(openml.evaluations, "list_evaluations", refuse)
+    stand_in(monkeypatch, openml.tasks, "get_task", refuse)
+    stand_in(monkeypatch, openml.datasets, "get_dataset", refuse)
+    stand_in(monkeypatch, openml.evaluations, "list_evaluations", refuse)
     monkeypatch.setattr(openml_source, "_reach",
                         lambda host, port, timeout=5.0: "Name or service not known")
 
@@ -162,8 +178,10 @@ def test_rows_target_and_type_come_from_the_task(server, cache, write_suite):
     info = openml_source.openml_task_info(CLS_ID)
     assert info["type"] == "binary" and info["target"] == "outcome"
     assert info["class_labels"] == ["fail", "pass"]
-    # the openml package's own cache is pointed at the tabpar folder
-    assert openml.config.get_cache_directory().startswith(str(cache))
+    # the openml package's cache is the tabpar folder during tabpar's calls, and its own
+    # setting again afterwards (so a notebook user's own openml calls do not land in ours)
+    assert server["cache_dirs"] and all(d.startswith(str(cache)) for d in server["cache_dirs"])
+    assert not openml.config.get_cache_directory().startswith(str(cache))
 
 
 def test_a_suite_task_runs_its_holdout_policy_on_openml_rows(server, cache, write_suite):
@@ -226,7 +244,7 @@ def test_a_connection_error_mid_call_is_the_offline_sentence(server, cache, monk
     def dropped(*args, **kwargs):
         raise requests.exceptions.ConnectionError("synthetic dropped connection")
 
-    monkeypatch.setattr(openml.tasks, "get_task", dropped)
+    stand_in(monkeypatch, openml.tasks, "get_task", dropped)
     with pytest.raises(UserError, match="has nothing for it"):
         load_source(f"openml:{CLS_ID}")
     assert not (cache / "tabpar" / f"task-{CLS_ID}").exists()  # nothing half-cached
@@ -236,7 +254,7 @@ def test_a_server_refusal_names_the_answer(server, cache, monkeypatch):
     def unknown(task_id, *args, **kwargs):
         raise openml.exceptions.OpenMLServerException("Unknown task", code=151)
 
-    monkeypatch.setattr(openml.tasks, "get_task", unknown)
+    stand_in(monkeypatch, openml.tasks, "get_task", unknown)
     with pytest.raises(UserError, match=r"refused OpenML task 900001.*Unknown task, code 151"):
         load_source(f"openml:{CLS_ID}")
 
@@ -263,7 +281,7 @@ def test_unsupported_task_type(server, cache, monkeypatch):
     clustering = OpenMLClassificationTask(
         task_type_id=TaskType.CLUSTERING, task_type="Clustering", data_set_id=DATA_ID,
         target_name="outcome", task_id=CLS_ID)
-    monkeypatch.setattr(openml.tasks, "get_task", lambda *a, **k: clustering)
+    stand_in(monkeypatch, openml.tasks, "get_task", lambda *a, **k: clustering)
     with pytest.raises(UserError, match="supervised classification and regression"):
         load_source(f"openml:{CLS_ID}")
 
@@ -335,7 +353,7 @@ def test_pull_offline_without_cache_fails_with_one_sentence(cache, monkeypatch, 
 
 
 def test_pull_with_no_runs(server, cache, monkeypatch):
-    monkeypatch.setattr(openml.evaluations, "list_evaluations",
+    stand_in(monkeypatch, openml.evaluations, "list_evaluations",
                         lambda function, **kwargs: pd.DataFrame())
     with pytest.raises(UserError, match="lists no runs"):
         pull_openml(CLS_ID, metric="roc_auc")

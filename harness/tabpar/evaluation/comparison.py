@@ -39,6 +39,7 @@ from tabpar.execution.store import (
     atomic_write_text,
     load_results,
     read_predictions,
+    read_run_meta,
 )
 from tabpar.models.zoo import check_models
 from tabpar.procedure.variants import builtin, resolve_procedure
@@ -167,7 +168,8 @@ def _seed_predictions(folder: Path, frame, task, model, seeds, row_id):
                      (frame["seed"] == seed) & (frame["status"] == "ok")]
         if rows.empty or not isinstance(rows["predictions"].iloc[-1], str):
             return None
-        aligned = align_to(*read_predictions(folder / rows["predictions"].iloc[-1]), row_id)
+        aligned = align_to(*read_predictions(folder / rows["predictions"].iloc[-1],
+                                             root=folder), row_id)
         if aligned is None:
             return None
         out.append(aligned)
@@ -229,7 +231,7 @@ def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, 
     ref = published_root() / "reference" / suite_name
     if not (ref / RUN_FILE).exists() or (base_out / RUN_FILE).exists():
         return 0
-    meta = json.loads((ref / RUN_FILE).read_text())
+    meta = read_run_meta(ref)
     rows = load_results(ref)
     versions = library_versions()
     current = {t.name: prepare_task(t).fingerprint for t in tasks}
@@ -277,7 +279,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
         f"compare-{suite_obj.name}-{datetime.now().strftime('%Y%m%d-%H%M%S')}")
     base_dir = Path(baseline) if (Path(baseline) / RUN_FILE).exists() else None
     if base_dir is not None:
-        base_meta = json.loads((base_dir / RUN_FILE).read_text())
+        base_meta = read_run_meta(base_dir)
         check_format(base_meta, base_dir)
         for task in selected:
             then = base_meta.get("tasks", {}).get(task.name, {}).get("fingerprint")
@@ -385,5 +387,5 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
 
 
 def _leakage_of(folder: Path, task: str) -> str | None:
-    meta = json.loads((folder / RUN_FILE).read_text())
+    meta = read_run_meta(folder)
     return meta.get("tasks", {}).get(task, {}).get("leakage")

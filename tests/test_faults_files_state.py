@@ -299,7 +299,7 @@ def _(c):
 
 
 @case("reference-predictions-outside-the-folder", 4, "error",
-      r"predictions path .* leads outside the results folder")
+      r"predictions path .* leads outside the results folder .*; delete that job.s line")
 def _(c):
     shutil.copy(c.run_dir / "predictions" / "t" / "rf-seed0.parquet", c.tmp / "elsewhere.pq")
     rows = [{**r, "predictions": "../elsewhere.pq"} if r["model"] == "rf" else r

@@ -16,6 +16,7 @@ The connection probe is replaced too, so "reachable" and "offline" are both simu
 from __future__ import annotations
 
 import json
+from pathlib import Path
 from unittest.mock import create_autospec
 
 import numpy as np
@@ -370,3 +371,119 @@ def test_place_against_an_openml_leaderboard_says_it_is_not_like_for_like(server
     assert "crossvalidation" in got["leaderboard_note"]
     meta = json.loads(best.path.read_text())
     assert meta["openml_task"]["estimation_procedure"] == "crossvalidation"
+
+
+# --- the package's real parsing path, offline -----------------------------------------------
+# The openml package reads a task's description (task.xml), its dataset's description
+# (description.xml), features (features.xml) and rows (dataset_ID.pq) from its own cache folder
+# before asking the server (openml 0.15: tasks.functions._get_cached_task,
+# datasets.functions._get_dataset_description / _get_dataset_features_file /
+# _get_dataset_parquet). Written here in that layout and format (the XML of the OpenML REST
+# API, oml namespace), with SYNTHETIC content, the real get_task → get_dataset → get_data path
+# runs with no request: every function that would reach the network is an auto-specced
+# stand-in that fails the test when called.
+XML_ID, XML_DATA = 900003, 800003  # synthetic ids
+
+TASK_XML = f"""<oml:task xmlns:oml="http://openml.org/openml">
+  <oml:task_id>{XML_ID}</oml:task_id>
+  <oml:task_type_id>1</oml:task_type_id>
+  <oml:task_type>Supervised Classification</oml:task_type>
+  <oml:input name="source_data">
+    <oml:data_set>
+      <oml:data_set_id>{XML_DATA}</oml:data_set_id>
+      <oml:target_feature>outcome</oml:target_feature>
+    </oml:data_set>
+  </oml:input>
+  <oml:input name="estimation_procedure">
+    <oml:estimation_procedure>
+      <oml:id>1</oml:id>
+      <oml:type>crossvalidation</oml:type>
+      <oml:data_splits_url>https://openml.invalid/splits/{XML_ID}</oml:data_splits_url>
+      <oml:parameter name="number_repeats">1</oml:parameter>
+      <oml:parameter name="number_folds">10</oml:parameter>
+      <oml:parameter name="stratified_sampling">true</oml:parameter>
+    </oml:estimation_procedure>
+  </oml:input>
+  <oml:input name="evaluation_measures">
+    <oml:evaluation_measures>
+      <oml:evaluation_measure>predictive_accuracy</oml:evaluation_measure>
+    </oml:evaluation_measures>
+  </oml:input>
+</oml:task>
+"""
+
+DESCRIPTION_XML = f"""<oml:data_set_description xmlns:oml="http://openml.org/openml">
+  <oml:id>{XML_DATA}</oml:id>
+  <oml:name>synthetic-exam-xml</oml:name>
+  <oml:version>1</oml:version>
+  <oml:format>ARFF</oml:format>
+  <oml:url>https://openml.invalid/data/{XML_DATA}.arff</oml:url>
+  <oml:parquet_url>https://openml.invalid/data/dataset_{XML_DATA}.pq</oml:parquet_url>
+  <oml:default_target_attribute>outcome</oml:default_target_attribute>
+  <oml:row_id_attribute>row_number</oml:row_id_attribute>
+  <oml:ignore_attribute>note</oml:ignore_attribute>
+  <oml:status>active</oml:status>
+</oml:data_set_description>
+"""
+
+
+def feature_xml(index, name, data_type, nominal=()):
+    values = "".join(f"<oml:nominal_value>{v}</oml:nominal_value>" for v in nominal)
+    return (f"<oml:feature><oml:index>{index}</oml:index><oml:name>{name}</oml:name>"
+            f"<oml:data_type>{data_type}</oml:data_type>{values}"
+            f"<oml:number_of_missing_values>0</oml:number_of_missing_values></oml:feature>")
+
+
+FEATURES_XML = ('<oml:data_features xmlns:oml="http://openml.org/openml">'
+                + feature_xml(0, "row_number", "numeric") + feature_xml(1, "note", "string")
+                + feature_xml(2, "x_num", "numeric")
+                + feature_xml(3, "x_cat", "nominal", ("blue", "green", "red"))
+                + feature_xml(4, "outcome", "nominal", ("fail", "pass"))
+                + "</oml:data_features>")
+
+
+@pytest.fixture
+def package_cache(cache, monkeypatch):
+    """The synthetic task in the openml package's own cache layout; the network refused."""
+    own = openml.config.get_config_as_dict()["cachedir"]
+    openml.config.set_root_cache_directory(str(cache))  # only to learn the package's layout
+    try:
+        base = Path(openml.config.get_cache_directory())
+    finally:
+        openml.config.set_root_cache_directory(own)
+    (base / "tasks" / str(XML_ID)).mkdir(parents=True)
+    (base / "tasks" / str(XML_ID) / "task.xml").write_text(TASK_XML)
+    data = base / "datasets" / str(XML_DATA)
+    data.mkdir(parents=True)
+    (data / "description.xml").write_text(DESCRIPTION_XML)
+    (data / "features.xml").write_text(FEATURES_XML)
+    X, y = synthetic_rows()
+    rows = pd.DataFrame({"row_number": np.arange(len(X)), "note": "synthetic", **X,
+                         "outcome": y})
+    rows.to_parquet(data / f"dataset_{XML_DATA}.pq", index=False)
+
+    def no_network(*args, **kwargs):
+        raise AssertionError("the network was used")
+    for name in ("_perform_api_call", "_download_minio_file", "_download_minio_bucket",
+                 "_download_text_file"):
+        real = getattr(openml._api_calls, name)
+        monkeypatch.setattr(openml._api_calls, name,
+                            create_autospec(real, side_effect=no_network))
+    monkeypatch.setattr(openml_source, "_reach", lambda host, port, timeout=5.0: None)
+    return rows, own
+
+
+def test_the_packages_own_parsing_path_reads_its_cache_offline(package_cache, cache,
+                                                               write_suite):
+    rows, own = package_cache
+    suite = exam_suite(write_suite, task_id=XML_ID)
+    loaded = load_task(suite.task("exam"))
+    # the row id and the ignored column are left out, as the dataset description marks them
+    assert list(loaded.frame.columns) == ["x_num", "x_cat", "outcome"]
+    pd.testing.assert_series_equal(loaded.frame["x_num"], rows["x_num"])
+    assert (loaded.frame["outcome"].astype(str) == rows["outcome"].astype(str)).all()
+    info = openml_source.openml_task_info(XML_ID)
+    assert info["type"] == "binary" and info["class_labels"] == ["fail", "pass"]
+    assert info["dataset_id"] == XML_DATA and info["estimation_procedure"] == "crossvalidation"
+    assert info["dataset_name"] == "synthetic-exam-xml"
+    assert openml.config.get_config_as_dict()["cachedir"] == own  # the package's own again

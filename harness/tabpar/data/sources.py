@@ -5,6 +5,7 @@ without a target, the seeded row cap, assembling and parsing dates, dropping col
 """
 from __future__ import annotations
 
+import codecs
 import csv
 import difflib
 import hashlib
@@ -141,6 +142,8 @@ def read_table(path: Path) -> pd.DataFrame:
 def _read_csv(handle, path: Path, sep: str) -> pd.DataFrame:
     line = read_header_line(handle, path)
     try:
+        # the header and the first 64 KiB after it (a multi-byte character may be cut there)
+        codecs.getincrementaldecoder("utf-8")().decode(line + handle.read(1 << 16))
         header = next(csv.reader([line.decode("utf-8").rstrip("\r\n")], delimiter=sep), None)
     except UnicodeDecodeError:
         raise UserError(f"{path} is not a UTF-8 text file, so not a CSV tabpar can read; save "

@@ -37,6 +37,7 @@ from tabpar.execution.store import (
     ResultsStore,
     align_to,
     atomic_write_text,
+    inside_folder,
     load_results,
     read_predictions,
     read_run_meta,
@@ -250,9 +251,9 @@ def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, 
     try:
         for row in keep.to_dict("records"):
             row = {k: v for k, v in row.items() if not (isinstance(v, float) and np.isnan(v))}
-            target = base_out / row["predictions"]
+            target = inside_folder(base_out, row["predictions"])
             target.parent.mkdir(parents=True, exist_ok=True)
-            shutil.copyfile(ref / row["predictions"], target)
+            shutil.copyfile(inside_folder(ref, row["predictions"]), target)
             store.append(row)
     finally:
         store.close()

@@ -35,10 +35,13 @@ JOBS_FILE = "jobs.jsonl"
 RUN_FILE = "run.json"
 LOCK_FILE = ".lock"
 STORE_FORMAT = 1  # bump when a change makes old folders unreadable
-# what every job row must hold, and of which JSON type (other keys are free)
+# what every job row must hold, and of which JSON type; then the keys checked when present
+# (rows copied between folders may lack them); other keys are free
 JOB_FIELDS = {"task": str, "model": str, "seed": int, "status": str, "metric": str,
-              "lower_is_better": bool, "score": NUMBER_OR_NULL, "train_score": NUMBER_OR_NULL,
-              "fit_seconds": NUMBER_OR_NULL, "fingerprint": str, "error": TEXT_OR_NULL}
+              "score": NUMBER_OR_NULL}
+JOB_OPTIONAL = {"lower_is_better": bool, "train_score": NUMBER_OR_NULL,
+                "fit_seconds": NUMBER_OR_NULL, "fingerprint": str, "error": TEXT_OR_NULL,
+                "predictions": TEXT_OR_NULL}
 RUN_FIELDS = {"format": int, "suite": str, "tasks": dict}
 
 
@@ -73,7 +76,8 @@ def read_job_rows(path: Path) -> list[dict]:
                 raise UserError(f"{where} is torn or not JSON; {fix_line}.") from None
             if not isinstance(row, dict):
                 raise UserError(f"{where} is not a JSON object; {fix_line}.")
-            check_fields(row, JOB_FIELDS, where, fix_line)
+            check_fields(row, {**JOB_FIELDS, **{k: v for k, v in JOB_OPTIONAL.items()
+                                                if k in row}}, where, fix_line)
             if row["status"] == "ok" and not (row["score"] is not None
                                               and math.isfinite(row["score"])):
                 raise UserError(f"{where} is an ok job without a finite score "
@@ -212,10 +216,7 @@ def read_predictions(path: Path, root: Path | None = None) -> tuple[np.ndarray, 
     path = Path(path)
     fix = "rerun its job (delete its line in jobs.jsonl and run again), or rebuild the folder"
     if root is not None:
-        inside = Path(root).resolve()
-        if inside not in path.resolve().parents:
-            raise UserError(f"The predictions path {path} leads outside the results folder "
-                            f"{root}; {fix}.")
+        _refuse_outside(root, path, path)
     frame = read_state_parquet(path, fix, what=f"The predictions file {path}")
     if "row_id" not in frame or not ("prediction" in frame or any(
             str(c).startswith("proba_") for c in frame.columns)):
@@ -227,6 +228,22 @@ def read_predictions(path: Path, root: Path | None = None) -> tuple[np.ndarray, 
     cols = sorted((c for c in frame.columns if c.startswith("proba_")),
                   key=lambda c: int(c.split("_")[1]))
     return row_id, frame[cols].to_numpy()
+
+
+def inside_folder(folder: str | Path, path: str | Path) -> Path:
+    """``folder / path``; UserError when it leads outside ``folder`` (e.g. ``../../x`` in a
+    jobs line), so a results folder never makes tabpar read or write elsewhere."""
+    target = Path(folder) / path
+    _refuse_outside(folder, target, path)
+    return target
+
+
+def _refuse_outside(folder: str | Path, target: Path, given) -> None:
+    folder = Path(folder)
+    if folder.resolve() not in target.resolve().parents:
+        raise UserError(f"The predictions path {given} leads outside the results folder "
+                        f"{folder}; delete that job's line in {folder / JOBS_FILE} (it runs "
+                        f"again), or rebuild the folder.")
 
 
 def align_to(ids: np.ndarray, prediction: np.ndarray, row_id: np.ndarray):

@@ -588,7 +588,8 @@ def test_replacing_a_leaderboard_that_fails_midway_keeps_the_old_one(tmp_path, m
         return real_replace(src, dst)
 
     monkeypatch.setattr(tabpar.execution.store.os, "replace", replace)
-    with pytest.raises(UserError, match="Cannot write to the leaderboard store"):
+    with pytest.raises(UserError, match=r"Cannot write .*store.*\(No space left on device\); "
+                                        r"choose another store"):
         import_leaderboard(tmp_path / "new.csv", task="ames", score_column="rmsle",
                            name="board", store=store, replace=True)
     monkeypatch.undo()
@@ -609,7 +610,7 @@ def test_an_interrupted_cache_write_is_never_used(tmp_path, monkeypatch):
         return real_save(path, array, *a, **k)
 
     monkeypatch.setattr(np, "save", save)
-    with pytest.raises(OSError):
+    with pytest.raises(UserError, match=r"\(No space left on device\); set TABPAR_CACHE"):
         prepare_task(task, cache_dir=tmp_path / "cache")
     monkeypatch.undo()
     assert cache_info(tmp_path / "cache")["entries"] == []

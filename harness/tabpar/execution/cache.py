@@ -11,7 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
-from tabpar.common.files import atomic_folder, atomic_write_text
+from tabpar.common.files import atomic_folder
 from tabpar.common.paths import CACHE_ENV, cache_root
 from tabpar.common.system import release_freed_memory
 from tabpar.common.text import plain
@@ -114,7 +114,7 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
                        f"free space (tabpar cache clear frees this one)") as tmp:
         for name in ARRAYS:
             np.save(tmp / f"{name}.npy", getattr(prepared, name))
-        atomic_write_text(tmp / "meta.json", json.dumps(meta))
+        (tmp / "meta.json").write_text(json.dumps(meta))  # the folder is the atomic unit
     return PreparedTask(task=task, folder=folder, **meta)
 
 

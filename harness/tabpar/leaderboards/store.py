@@ -231,10 +231,11 @@ def save_leaderboard(entries: pd.DataFrame, meta: dict, name: str, store, replac
             previous = None
     meta = {"format": FORMAT, "name": name, **meta, "entries_file": data_path.name,
             "entries_sha256": digest, "created_at": now_iso()}
+    fix = f"choose another store with --store or {STORE_ENV}, or free disk space there"
     try:
         folder.mkdir(parents=True, exist_ok=True)
-        atomic_write_bytes(data_path, payload)
-        atomic_write_text(meta_path, json.dumps(meta, indent=2, default=str))
+        atomic_write_bytes(data_path, payload, fix)
+        atomic_write_text(meta_path, json.dumps(meta, indent=2, default=str), fix)
     except OSError as exc:
         raise UserError(f"Cannot write to the leaderboard store {folder} ({exc.strerror}); "
                         f"choose another with --store or {STORE_ENV}.") from None

@@ -269,7 +269,7 @@ def _(c):
     return c.run()
 
 
-@case("run-json-torn", 4, "error", r"run\.json is torn or not JSON .*; delete run\.json")
+@case("run-json-torn", 4, "error", r"run\.json is torn or not JSON .*; use another --out")
 def _(c):
     path = c.run_dir / "run.json"
     path.write_bytes(path.read_bytes()[:50])
@@ -277,7 +277,7 @@ def _(c):
 
 
 @case("run-json-holds-an-array", 4, "cli", r"run\.json holds a JSON array where tabpar wrote a "
-                                           r"JSON object; delete run\.json")
+                                           r"JSON object; use another --out")
 def _(c):
     (c.run_dir / "run.json").write_text("[1, 2, 3]")
     return c.run()

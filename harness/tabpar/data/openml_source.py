@@ -16,8 +16,8 @@ Cache: everything fetched goes under ``$TABPAR_OPENML_CACHE`` (default
 ``~/.cache/tabpar/openml``): the openml package's own downloads, and tabpar's copy of each task's
 rows and description in ``tabpar/task-ID/``. The package is pointed there only for tabpar's own
 calls, and its setting restored after each, so a user's own openml calls are unaffected. A task
-found there is read without any network call,
-so a second run works offline. Before the first call to the server a short connection probe
+found there is read without any network call, so a second run works offline; a torn copy is one
+sentence naming the folder to delete. Before the first call to the server a short connection probe
 (``PROBE_SECONDS``) checks it can be reached: without a network every OpenML path fails within
 seconds with one sentence, instead of after the package's retries.
 """

@@ -3,8 +3,8 @@
 ``OUT/jobs.jsonl`` holds one JSON object per finished job, written with a single ``write`` and
 flushed to disk before the next job is recorded. A last line cut short by a crash is skipped
 with a warning (and cut off before the next append); any other line that is not a job record is
-refused with its line number, as is a ``run.json`` that is torn or of the wrong shape. ``OUT/predictions/TASK/MODEL-seedN.parquet`` holds each job's holdout predictions
-(``row_id``, ``prediction`` or one ``proba_K`` column per class). ``OUT/run.json`` describes the
+refused with its line number, as is a ``run.json`` that is torn or of the wrong shape.
+``OUT/predictions/TASK/MODEL-seedN.parquet`` holds each job's holdout predictions (``row_id``, ``prediction`` or one ``proba_K`` column per class). ``OUT/run.json`` describes the
 run (suite, tasks, fingerprints) so a rerun can resume or refuse to mix.
 """
 from __future__ import annotations
@@ -91,8 +91,7 @@ def read_run_meta(folder: str | Path) -> dict | None:
     path = Path(folder) / RUN_FILE
     if not os.path.lexists(path):
         return None
-    fix = (f"delete {RUN_FILE} to start that folder afresh (its finished jobs are kept only "
-           f"when the data is unchanged), or use another --out")
+    fix = "use another --out, or delete that folder to start it afresh"
     meta = read_state_json(path, fix)
     check_fields(meta, RUN_FIELDS, str(path), fix)
     for name, info in meta["tasks"].items():

@@ -284,7 +284,8 @@ def import_leaderboard(path: str | Path, task: str, score_column: str,
         metric, direction_from = (known if agrees else None), flag
     name = sanitise_name(name if name is not None else path.stem)
     refuse_existing([name], store, replace)
-    data = path.read_bytes()
+    with open_regular(path, "File", fix="give a CSV or Parquet file") as handle:
+        data = handle.read()  # for the checksum of what was imported
     meta = {"kind": "imported", "view": "as published", "task": task,
             "score_column": str(score_column), "lower_is_better": bool(lower_is_better),
             "metric": metric, "direction_from": direction_from, "n_entries": len(frame),

@@ -399,6 +399,20 @@ def _(c):
     return c.run(out=c.tmp / "out")
 
 
+@case("cache-folder-read-only", 5, "cli", r"Cannot write .*ro-cache/prepared/t-\w+ \(Read-only "
+                                          r"file system\); set TABPAR_CACHE to a writable")
+def _(c):
+    # a read-only mount answers EROFS on the first write (tests run as root, whom file modes
+    # do not stop, so the mount is simulated where the cache entry's folder is made)
+    import tempfile
+
+    def read_only(*args, **kwargs):
+        raise OSError(errno.EROFS, "Read-only file system")
+    c.monkeypatch.setenv("TABPAR_CACHE", str(c.tmp / "ro-cache"))
+    c.monkeypatch.setattr(tempfile, "mkdtemp", read_only)
+    return c.run(out=c.tmp / "out")
+
+
 @case("home-is-unusable", 5, "cli", r"Cannot write .*home-file/\.cache/tabpar/prepared/t-\w+ "
                                     r"\(Not a directory\); set TABPAR_CACHE")
 def _(c):

@@ -16,6 +16,8 @@ The connection probe is replaced too, so "reachable" and "offline" are both simu
 from __future__ import annotations
 
 import json
+from pathlib import Path
+from unittest.mock import create_autospec
 
 import numpy as np
 import pandas as pd
@@ -24,6 +26,7 @@ import pytest
 openml = pytest.importorskip("openml")
 requests = pytest.importorskip("requests")
 
+from openml.datasets import OpenMLDataset  # noqa: E402
 from openml.tasks import OpenMLClassificationTask, OpenMLRegressionTask, TaskType  # noqa: E402
 from tabpar.cli.main import main  # noqa: E402
 from tabpar.common.errors import UserError  # noqa: E402
@@ -34,6 +37,10 @@ from tabpar.leaderboards.openml_runs import pull_openml  # noqa: E402
 from tabpar.leaderboards.store import load_leaderboard  # noqa: E402
 
 CLS_ID, REG_ID, DATA_ID = 900001, 900002, 800001  # synthetic ids
+# the package's own functions, captured before any test replaces them (the stand-ins' specs)
+REAL = {(m.__name__, f): getattr(m, f) for m, f in (
+    (openml.tasks, "get_task"), (openml.datasets, "get_dataset"),
+    (openml.evaluations, "list_evaluations"))}
 
 
 def synthetic_rows(n=150):
@@ -45,21 +52,21 @@ def synthetic_rows(n=150):
     return X, y
 
 
-class SyntheticDataset:
-    """Stand-in for an OpenMLDataset: ``get_data`` as documented (4-tuple)."""
-
-    name, dataset_id, version = "synthetic-exam", DATA_ID, 1
-
-    def __init__(self, regression=False):
-        self.regression = regression
-
-    def get_data(self, target=None, include_row_id=False, include_ignore_attribute=False,
+def synthetic_dataset(regression=False):
+    """Stand-in for an OpenMLDataset, auto-specced from the real class: ``get_data`` as
+    documented (4-tuple), with the real method's signature."""
+    def get_data(target=None, include_row_id=False, include_ignore_attribute=False,
                  dataset_format="dataframe"):
         X, y = synthetic_rows()
-        if self.regression:
+        if regression:
             y = pd.Series(X["x_num"] * 2.0 + 1.0, name=target)
             X = X.drop(columns=["x_num"]).assign(x_other=np.arange(len(X), dtype=float))
         return X, y.rename(target), [False, True], list(X.columns)
+
+    dataset = create_autospec(OpenMLDataset, instance=True)
+    dataset.get_data.side_effect = get_data
+    dataset.name, dataset.dataset_id, dataset.version = "synthetic-exam", DATA_ID, 1
+    return dataset
 
 
 def synthetic_task(task_id):
@@ -98,26 +105,36 @@ def cache(tmp_path, monkeypatch):
 @pytest.fixture
 def server(monkeypatch, cache):
     """A reachable, synthetic OpenML server; ``calls`` records what was asked."""
-    calls = {"get_task": [], "get_dataset": [], "list_evaluations": []}
+    calls = {"get_task": [], "get_dataset": [], "list_evaluations": [], "cache_dirs": []}
 
     def get_task(task_id, *args, **kwargs):
         calls["get_task"].append((task_id, kwargs))
+        calls["cache_dirs"].append(openml.config.get_cache_directory())
         return synthetic_task(task_id)
 
     def get_dataset(dataset_id, *args, **kwargs):
         calls["get_dataset"].append(dataset_id)
-        return SyntheticDataset(regression=bool(calls["get_task"])
-                                and calls["get_task"][-1][0] == REG_ID)
+        return synthetic_dataset(regression=bool(calls["get_task"])
+                                 and calls["get_task"][-1][0] == REG_ID)
 
     def list_evaluations(function, **kwargs):
         calls["list_evaluations"].append((function, kwargs))
+        calls["cache_dirs"].append(openml.config.get_cache_directory())
         return synthetic_evaluations(function, kwargs["tasks"][0])
 
-    monkeypatch.setattr(openml.tasks, "get_task", get_task)
-    monkeypatch.setattr(openml.datasets, "get_dataset", get_dataset)
-    monkeypatch.setattr(openml.evaluations, "list_evaluations", list_evaluations)
+    # auto-specced from the real functions: a misspelt or missing argument fails the call
+    stand_in(monkeypatch, openml.tasks, "get_task", get_task)
+    stand_in(monkeypatch, openml.datasets, "get_dataset", get_dataset)
+    stand_in(monkeypatch, openml.evaluations, "list_evaluations", list_evaluations)
     monkeypatch.setattr(openml_source, "_reach", lambda host, port, timeout=5.0: None)
     return calls
+
+
+def stand_in(monkeypatch, module, name, side_effect):
+    """Replace ``module.name`` by a stand-in with the real function's signature."""
+    fake = create_autospec(REAL[module.__name__, name], side_effect=side_effect)
+    monkeypatch.setattr(module, name, fake)
+    return fake
 
 
 def go_offline(monkeypatch):
@@ -125,9 +142,9 @@ def go_offline(monkeypatch):
     def refuse(*args, **kwargs):
         raise AssertionError("the network was used")
 
-    monkeypatch.setattr(openml.tasks, "get_task", refuse)
-    monkeypatch.setattr(openml.datasets, "get_dataset", refuse)
-    monkeypatch.setattr(openml.evaluations, "list_evaluations", refuse)
+    stand_in(monkeypatch, openml.tasks, "get_task", refuse)
+    stand_in(monkeypatch, openml.datasets, "get_dataset", refuse)
+    stand_in(monkeypatch, openml.evaluations, "list_evaluations", refuse)
     monkeypatch.setattr(openml_source, "_reach",
                         lambda host, port, timeout=5.0: "Name or service not known")
 
@@ -162,8 +179,10 @@ def test_rows_target_and_type_come_from_the_task(server, cache, write_suite):
     info = openml_source.openml_task_info(CLS_ID)
     assert info["type"] == "binary" and info["target"] == "outcome"
     assert info["class_labels"] == ["fail", "pass"]
-    # the openml package's own cache is pointed at the tabpar folder
-    assert openml.config.get_cache_directory().startswith(str(cache))
+    # the openml package's cache is the tabpar folder during tabpar's calls, and its own
+    # setting again afterwards (so a notebook user's own openml calls do not land in ours)
+    assert server["cache_dirs"] and all(d.startswith(str(cache)) for d in server["cache_dirs"])
+    assert not openml.config.get_cache_directory().startswith(str(cache))
 
 
 def test_a_suite_task_runs_its_holdout_policy_on_openml_rows(server, cache, write_suite):
@@ -226,7 +245,7 @@ def test_a_connection_error_mid_call_is_the_offline_sentence(server, cache, monk
     def dropped(*args, **kwargs):
         raise requests.exceptions.ConnectionError("synthetic dropped connection")
 
-    monkeypatch.setattr(openml.tasks, "get_task", dropped)
+    stand_in(monkeypatch, openml.tasks, "get_task", dropped)
     with pytest.raises(UserError, match="has nothing for it"):
         load_source(f"openml:{CLS_ID}")
     assert not (cache / "tabpar" / f"task-{CLS_ID}").exists()  # nothing half-cached
@@ -236,7 +255,7 @@ def test_a_server_refusal_names_the_answer(server, cache, monkeypatch):
     def unknown(task_id, *args, **kwargs):
         raise openml.exceptions.OpenMLServerException("Unknown task", code=151)
 
-    monkeypatch.setattr(openml.tasks, "get_task", unknown)
+    stand_in(monkeypatch, openml.tasks, "get_task", unknown)
     with pytest.raises(UserError, match=r"refused OpenML task 900001.*Unknown task, code 151"):
         load_source(f"openml:{CLS_ID}")
 
@@ -263,7 +282,7 @@ def test_unsupported_task_type(server, cache, monkeypatch):
     clustering = OpenMLClassificationTask(
         task_type_id=TaskType.CLUSTERING, task_type="Clustering", data_set_id=DATA_ID,
         target_name="outcome", task_id=CLS_ID)
-    monkeypatch.setattr(openml.tasks, "get_task", lambda *a, **k: clustering)
+    stand_in(monkeypatch, openml.tasks, "get_task", lambda *a, **k: clustering)
     with pytest.raises(UserError, match="supervised classification and regression"):
         load_source(f"openml:{CLS_ID}")
 
@@ -335,7 +354,7 @@ def test_pull_offline_without_cache_fails_with_one_sentence(cache, monkeypatch, 
 
 
 def test_pull_with_no_runs(server, cache, monkeypatch):
-    monkeypatch.setattr(openml.evaluations, "list_evaluations",
+    stand_in(monkeypatch, openml.evaluations, "list_evaluations",
                         lambda function, **kwargs: pd.DataFrame())
     with pytest.raises(UserError, match="lists no runs"):
         pull_openml(CLS_ID, metric="roc_auc")
@@ -352,3 +371,119 @@ def test_place_against_an_openml_leaderboard_says_it_is_not_like_for_like(server
     assert "crossvalidation" in got["leaderboard_note"]
     meta = json.loads(best.path.read_text())
     assert meta["openml_task"]["estimation_procedure"] == "crossvalidation"
+
+
+# --- the package's real parsing path, offline -----------------------------------------------
+# The openml package reads a task's description (task.xml), its dataset's description
+# (description.xml), features (features.xml) and rows (dataset_ID.pq) from its own cache folder
+# before asking the server (openml 0.15: tasks.functions._get_cached_task,
+# datasets.functions._get_dataset_description / _get_dataset_features_file /
+# _get_dataset_parquet). Written here in that layout and format (the XML of the OpenML REST
+# API, oml namespace), with SYNTHETIC content, the real get_task → get_dataset → get_data path
+# runs with no request: every function that would reach the network is an auto-specced
+# stand-in that fails the test when called.
+XML_ID, XML_DATA = 900003, 800003  # synthetic ids
+
+TASK_XML = f"""<oml:task xmlns:oml="http://openml.org/openml">
+  <oml:task_id>{XML_ID}</oml:task_id>
+  <oml:task_type_id>1</oml:task_type_id>
+  <oml:task_type>Supervised Classification</oml:task_type>
+  <oml:input name="source_data">
+    <oml:data_set>
+      <oml:data_set_id>{XML_DATA}</oml:data_set_id>
+      <oml:target_feature>outcome</oml:target_feature>
+    </oml:data_set>
+  </oml:input>
+  <oml:input name="estimation_procedure">
+    <oml:estimation_procedure>
+      <oml:id>1</oml:id>
+      <oml:type>crossvalidation</oml:type>
+      <oml:data_splits_url>https://openml.invalid/splits/{XML_ID}</oml:data_splits_url>
+      <oml:parameter name="number_repeats">1</oml:parameter>
+      <oml:parameter name="number_folds">10</oml:parameter>
+      <oml:parameter name="stratified_sampling">true</oml:parameter>
+    </oml:estimation_procedure>
+  </oml:input>
+  <oml:input name="evaluation_measures">
+    <oml:evaluation_measures>
+      <oml:evaluation_measure>predictive_accuracy</oml:evaluation_measure>
+    </oml:evaluation_measures>
+  </oml:input>
+</oml:task>
+"""
+
+DESCRIPTION_XML = f"""<oml:data_set_description xmlns:oml="http://openml.org/openml">
+  <oml:id>{XML_DATA}</oml:id>
+  <oml:name>synthetic-exam-xml</oml:name>
+  <oml:version>1</oml:version>
+  <oml:format>ARFF</oml:format>
+  <oml:url>https://openml.invalid/data/{XML_DATA}.arff</oml:url>
+  <oml:parquet_url>https://openml.invalid/data/dataset_{XML_DATA}.pq</oml:parquet_url>
+  <oml:default_target_attribute>outcome</oml:default_target_attribute>
+  <oml:row_id_attribute>row_number</oml:row_id_attribute>
+  <oml:ignore_attribute>note</oml:ignore_attribute>
+  <oml:status>active</oml:status>
+</oml:data_set_description>
+"""
+
+
+def feature_xml(index, name, data_type, nominal=()):
+    values = "".join(f"<oml:nominal_value>{v}</oml:nominal_value>" for v in nominal)
+    return (f"<oml:feature><oml:index>{index}</oml:index><oml:name>{name}</oml:name>"
+            f"<oml:data_type>{data_type}</oml:data_type>{values}"
+            f"<oml:number_of_missing_values>0</oml:number_of_missing_values></oml:feature>")
+
+
+FEATURES_XML = ('<oml:data_features xmlns:oml="http://openml.org/openml">'
+                + feature_xml(0, "row_number", "numeric") + feature_xml(1, "note", "string")
+                + feature_xml(2, "x_num", "numeric")
+                + feature_xml(3, "x_cat", "nominal", ("blue", "green", "red"))
+                + feature_xml(4, "outcome", "nominal", ("fail", "pass"))
+                + "</oml:data_features>")
+
+
+@pytest.fixture
+def package_cache(cache, monkeypatch):
+    """The synthetic task in the openml package's own cache layout; the network refused."""
+    own = openml.config.get_config_as_dict()["cachedir"]
+    openml.config.set_root_cache_directory(str(cache))  # only to learn the package's layout
+    try:
+        base = Path(openml.config.get_cache_directory())
+    finally:
+        openml.config.set_root_cache_directory(own)
+    (base / "tasks" / str(XML_ID)).mkdir(parents=True)
+    (base / "tasks" / str(XML_ID) / "task.xml").write_text(TASK_XML)
+    data = base / "datasets" / str(XML_DATA)
+    data.mkdir(parents=True)
+    (data / "description.xml").write_text(DESCRIPTION_XML)
+    (data / "features.xml").write_text(FEATURES_XML)
+    X, y = synthetic_rows()
+    rows = pd.DataFrame({"row_number": np.arange(len(X)), "note": "synthetic", **X,
+                         "outcome": y})
+    rows.to_parquet(data / f"dataset_{XML_DATA}.pq", index=False)
+
+    def no_network(*args, **kwargs):
+        raise AssertionError("the network was used")
+    for name in ("_perform_api_call", "_download_minio_file", "_download_minio_bucket",
+                 "_download_text_file"):
+        real = getattr(openml._api_calls, name)
+        monkeypatch.setattr(openml._api_calls, name,
+                            create_autospec(real, side_effect=no_network))
+    monkeypatch.setattr(openml_source, "_reach", lambda host, port, timeout=5.0: None)
+    return rows, own
+
+
+def test_the_packages_own_parsing_path_reads_its_cache_offline(package_cache, cache,
+                                                               write_suite):
+    rows, own = package_cache
+    suite = exam_suite(write_suite, task_id=XML_ID)
+    loaded = load_task(suite.task("exam"))
+    # the row id and the ignored column are left out, as the dataset description marks them
+    assert list(loaded.frame.columns) == ["x_num", "x_cat", "outcome"]
+    pd.testing.assert_series_equal(loaded.frame["x_num"], rows["x_num"])
+    assert (loaded.frame["outcome"].astype(str) == rows["outcome"].astype(str)).all()
+    info = openml_source.openml_task_info(XML_ID)
+    assert info["type"] == "binary" and info["class_labels"] == ["fail", "pass"]
+    assert info["dataset_id"] == XML_DATA and info["estimation_procedure"] == "crossvalidation"
+    assert info["dataset_name"] == "synthetic-exam-xml"
+    assert openml.config.get_config_as_dict()["cachedir"] == own  # the package's own again

@@ -42,6 +42,7 @@ import tabpar.execution.store
 import tabpar.models.zoo
 from tabpar.cli.main import main
 from tabpar.common.errors import UserError
+from tabpar.common.files import StateWarning
 from tabpar.execution.store import atomic_write_bytes, read_job_rows
 
 pytestmark = pytest.mark.skipif(not sys.platform.startswith("linux"),
@@ -463,14 +464,39 @@ def test_a_second_run_on_a_folder_in_use_is_refused(tmp_path, stand_ins, capsys)
     assert "2 jobs: 2 ok, 0 failed, 2 reused" in capsys.readouterr().out
 
 
-def test_read_job_rows_skips_torn_and_foreign_lines(tmp_path):
-    good = [{"task": "t", "model": "naive", "seed": s, "status": "ok"} for s in (0, 1)]
+def job_row(seed, **changes):
+    """A complete job row of the shape tabpar writes (SYNTHETIC values)."""
+    row = {"task": "t", "model": "naive", "seed": seed, "status": "ok", "metric": "rmse",
+           "lower_is_better": True, "score": 1.5, "train_score": 1.4, "fit_seconds": 0.01,
+           "fingerprint": "0123456789abcdef", "error": None}
+    return {**row, **changes}
+
+
+def test_read_job_rows_skips_a_torn_last_line_and_blank_lines(tmp_path):
+    good = [job_row(0), job_row(1, status="failed", score=None, error="ValueError: x")]
     path = tmp_path / "jobs.jsonl"
-    path.write_bytes(b"".join([
-        json.dumps(good[0]).encode() + b"\n", b"\n", b"not json at all\n", b"[1, 2]\n",
-        b'{"task": "t"}\n', json.dumps(good[1]).encode() + b"\n",
-        b'{"task": "t", "model": "rf", "seed": 0, "status": "o']))
-    assert read_job_rows(path) == good
+    path.write_bytes(b"".join([json.dumps(good[0]).encode() + b"\n", b"\n",
+                               json.dumps(good[1]).encode() + b"\n",
+                               b'{"task": "t", "model": "rf", "seed": 0, "status": "o']))
+    with pytest.warns(StateWarning, match="line 4 of .* is incomplete"):
+        assert read_job_rows(path) == good
+
+
+@pytest.mark.parametrize("line, expected", [
+    (b"not json at all", "is torn or not JSON"),
+    (b"[1, 2]", "is not a JSON object"),
+    (b'{"task": "t"}', "lacks 'model'"),
+    (json.dumps({**job_row(2), "seed": "2"}).encode(), "has seed '2', not a whole number"),
+    (json.dumps(job_row(2, score="abc")).encode(), "has score 'abc', not a number"),
+    (json.dumps(job_row(2, score=None)).encode(), "an ok job without a finite score"),
+])
+def test_read_job_rows_refuses_a_foreign_line_in_the_middle(tmp_path, line, expected):
+    path = tmp_path / "jobs.jsonl"
+    path.write_bytes(json.dumps(job_row(0)).encode() + b"\n" + line + b"\n"
+                     + json.dumps(job_row(1)).encode() + b"\n")
+    with pytest.raises(UserError, match=f"Line 2 of {re.escape(str(path))} .*{expected}.*; "
+                                        f"delete that line"):
+        read_job_rows(path)
 
 
 # --- atomic writes ---------------------------------------------------------------------------
@@ -515,7 +541,8 @@ def test_atomic_write_keeps_the_old_file_when_the_write_fails(failure, tmp_path,
                  else KeyboardInterrupt())
         monkeypatch.setattr(tabpar.execution.store.os, "fdopen",
                             lambda fd, mode: _HalfWriter(real_fdopen(fd, mode), error))
-    with pytest.raises((OSError, KeyboardInterrupt)):
+    # a file-system fault is one sentence naming the file (common.files.write_error)
+    with pytest.raises((UserError, KeyboardInterrupt), match=re.escape(str(path)) + "|^$"):
         atomic_write_bytes(path, b'{"new": "a much longer text that is cut in half"}\n' * 100)
     monkeypatch.undo()
     assert path.read_bytes() == b'{"old": true}\n'
@@ -526,7 +553,7 @@ def test_atomic_write_of_a_new_file_leaves_nothing_when_it_fails(tmp_path, monke
     def replace(src, dst):
         raise OSError(errno.ENOSPC, "No space left on device")
     monkeypatch.setattr(tabpar.execution.store.os, "replace", replace)
-    with pytest.raises(OSError):
+    with pytest.raises(UserError, match="new.parquet .No space left on device.; free disk"):
         atomic_write_bytes(tmp_path / "new.parquet", b"data")
     monkeypatch.undo()
     assert list(tmp_path.iterdir()) == []
@@ -560,7 +587,8 @@ def test_replacing_a_leaderboard_that_fails_midway_keeps_the_old_one(tmp_path, m
         return real_replace(src, dst)
 
     monkeypatch.setattr(tabpar.execution.store.os, "replace", replace)
-    with pytest.raises(UserError, match="Cannot write to the leaderboard store"):
+    with pytest.raises(UserError, match=r"Cannot write .*store.*\(No space left on device\); "
+                                        r"choose another store"):
         import_leaderboard(tmp_path / "new.csv", task="ames", score_column="rmsle",
                            name="board", store=store, replace=True)
     monkeypatch.undo()
@@ -581,7 +609,7 @@ def test_an_interrupted_cache_write_is_never_used(tmp_path, monkeypatch):
         return real_save(path, array, *a, **k)
 
     monkeypatch.setattr(np, "save", save)
-    with pytest.raises(OSError):
+    with pytest.raises(UserError, match=r"\(No space left on device\); set TABPAR_CACHE"):
         prepare_task(task, cache_dir=tmp_path / "cache")
     monkeypatch.undo()
     assert cache_info(tmp_path / "cache")["entries"] == []

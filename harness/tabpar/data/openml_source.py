@@ -14,14 +14,15 @@ reproduce either. Placement against an OpenML leaderboard says so.
 
 Cache: everything fetched goes under ``$TABPAR_OPENML_CACHE`` (default
 ``~/.cache/tabpar/openml``): the openml package's own downloads, and tabpar's copy of each task's
-rows and description in ``tabpar/task-ID/``. A task found there is read without any network call,
-so a second run works offline. Before the first call to the server a short connection probe
+rows and description in ``tabpar/task-ID/``. The package is pointed there only for tabpar's own
+calls, and its setting restored after each, so a user's own openml calls are unaffected. A task
+found there is read without any network call, so a second run works offline; a torn copy is one
+sentence naming the folder to delete. Before the first call to the server a short connection probe
 (``PROBE_SECONDS``) checks it can be reached: without a network every OpenML path fails within
 seconds with one sentence, instead of after the package's retries.
 """
 from __future__ import annotations
 
-import inspect
 import json
 import os
 import socket
@@ -35,10 +36,18 @@ from pathlib import Path
 import pandas as pd
 
 from tabpar.common.errors import UserError
-from tabpar.common.files import atomic_folder
+from tabpar.common.files import (
+    atomic_folder,
+    check_fields,
+    read_state_json,
+    read_state_parquet,
+)
 from tabpar.common.paths import OPENML_CACHE_ENV as CACHE_ENV
 from tabpar.common.paths import openml_cache
 
+# what tabpar's copy of a task's description must hold (task.json)
+TASK_FIELDS = {"task_id": int, "type": str, "target": str, "class_labels": list,
+               "dataset_id": int}
 PROBE_SECONDS = 5.0  # a reachable server answers a TCP connect far faster than this
 # OpenML's task type ids (openml.tasks.TaskType): 1 supervised classification, 2 regression
 _CLASSIFICATION, _REGRESSION = 1, 2
@@ -60,28 +69,53 @@ def parse_task_id(text) -> int:
 
 
 def import_openml():
-    """The ``openml`` module with its cache pointed at ``openml_cache_dir()``."""
-    root = openml_cache_dir()
-    # the package creates its cache folder on import: point it at ours for that moment, so
-    # nothing lands in the package's default folder
-    previous = os.environ.get("OPENML_CACHE_DIR")
-    os.environ["OPENML_CACHE_DIR"] = str(root)
+    """The ``openml`` package; UserError when it is missing or fails to start.
+
+    Imported as the package configures itself (its own cache folder, the user's config file),
+    so a notebook user's own openml calls are unaffected; tabpar points it at its cache only
+    during its own calls (``openml_session``). When the package cannot create its default
+    folder (e.g. an unusable HOME), the import is retried with tabpar's cache folder.
+    """
     try:
         import openml
     except ImportError:
         raise UserError("OpenML tasks and leaderboards need the openml package, which is not "
                         "installed; run pip install 'tabpar[openml]'.") from None
+    except OSError:
+        openml = _import_in(openml_cache_dir())
+    return openml
+
+
+def _import_in(root: Path):
+    """``import openml`` with its folder set to ``root`` for that moment (a retry after the
+    package failed to create its default folder)."""
+    previous = os.environ.get("OPENML_CACHE_DIR")
+    os.environ["OPENML_CACHE_DIR"] = str(root)
+    try:
+        import openml
+    except OSError as exc:
+        raise UserError(f"The openml package cannot create its cache folder ({exc.strerror}: "
+                        f"{exc.filename or root}); set HOME or {CACHE_ENV} to a writable "
+                        f"folder.") from None
     finally:
         if previous is None:
             os.environ.pop("OPENML_CACHE_DIR", None)
         else:
             os.environ["OPENML_CACHE_DIR"] = previous
-    setter = getattr(openml.config, "set_root_cache_directory", None)
-    if setter is not None:  # openml >= 0.14
-        setter(str(root))
-    else:  # pragma: no cover - older packages kept the folder in an attribute
-        openml.config.cache_directory = str(root)
     return openml
+
+
+@contextmanager
+def openml_session():
+    """The ``openml`` package with its cache at ``openml_cache_dir()`` for the block; its own
+    setting is restored afterwards, so later openml calls of the user land where they did."""
+    openml = import_openml()
+    previous = openml.config.get_config_as_dict()["cachedir"]
+    openml.config.set_root_cache_directory(str(openml_cache_dir()))
+    try:
+        yield openml
+    finally:
+        openml.config.set_root_cache_directory(previous)
 
 
 def _target_of(server_url: str) -> tuple[str, int]:
@@ -146,6 +180,12 @@ def server_calls(openml, what: str):
                         f"check the id on openml.org.") from None
     except (requests.exceptions.RequestException, openml.exceptions.OpenMLServerError) as exc:
         raise offline_error(what, host, exc.__class__.__name__) from None
+    except openml.exceptions.PyOpenMLError as exc:  # e.g. a private dataset
+        reason = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+        raise UserError(f"The openml package could not fetch {what} "
+                        f"({exc.__class__.__name__}{': ' + reason[:200] if reason else ''}); "
+                        f"check the id on openml.org (a private dataset needs your API key "
+                        f"in openml's configuration).") from None
     except OSError as exc:  # the cache folder, not the network
         raise UserError(f"Cannot write the OpenML cache folder {openml_cache_dir()} "
                         f"({exc.strerror}); set {CACHE_ENV} to a writable folder.") from None
@@ -176,11 +216,7 @@ def _describe(task, task_id: int) -> dict:
 
 
 def _get_data(dataset, target: str) -> tuple[pd.DataFrame, pd.Series]:
-    kwargs = {"target": target}
-    # openml 0.14 returns arrays unless asked for a DataFrame; later versions drop the option
-    if "dataset_format" in inspect.signature(dataset.get_data).parameters:
-        kwargs["dataset_format"] = "dataframe"
-    X, y, _, _ = dataset.get_data(**kwargs)
+    X, y, _, _ = dataset.get_data(target=target)  # a DataFrame by default since openml 0.15
     if not isinstance(X, pd.DataFrame):
         raise UserError(f"The openml package returned the data of dataset {dataset.dataset_id} "
                         f"as {type(X).__name__}, not a DataFrame; upgrade it with pip install "
@@ -190,9 +226,8 @@ def _get_data(dataset, target: str) -> tuple[pd.DataFrame, pd.Series]:
 
 def _fetch_task(task_id: int, with_rows: bool) -> None:
     """Download task ``task_id`` (and its rows) into the cache; one folder, renamed when whole."""
-    openml = import_openml()
     what = f"OpenML task {task_id}" + (" and its rows" if with_rows else "")
-    with server_calls(openml, what):
+    with openml_session() as openml, server_calls(openml, what):
         task = openml.tasks.get_task(task_id, download_splits=False, download_data=False,
                                      download_qualities=False)
         info = _describe(task, task_id)
@@ -209,14 +244,14 @@ def _fetch_task(task_id: int, with_rows: bool) -> None:
     info["fetched_at"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
     folder = _task_folder(task_id)
     try:
-        with atomic_folder(folder) as tmp:  # the folder appears complete or not at all
+        # the folder appears complete or not at all
+        with atomic_folder(folder, fix=f"set {CACHE_ENV} to a writable folder") as tmp:
             if frame is not None:
                 frame.to_parquet(tmp / "rows.parquet", index=False)
             (tmp / "task.json").write_text(json.dumps(info, indent=2), encoding="utf-8")
-    except OSError as exc:
+    except UserError:
         if not (folder / "task.json").exists():  # else another process cached it first
-            raise UserError(f"Cannot write the OpenML cache folder {openml_cache_dir()} "
-                            f"({exc.strerror}); set {CACHE_ENV} to a writable folder.") from None
+            raise
 
 
 def openml_task_info(task_id) -> dict:
@@ -226,7 +261,13 @@ def openml_task_info(task_id) -> dict:
     path = _task_folder(task_id) / "task.json"
     if not path.exists():
         _fetch_task(task_id, with_rows=False)
-    return json.loads(path.read_text(encoding="utf-8"))
+    info = read_state_json(path, _refetch(task_id))
+    check_fields(info, TASK_FIELDS, str(path), _refetch(task_id))
+    return info
+
+
+def _refetch(task_id: int) -> str:
+    return f"delete the folder {_task_folder(task_id)} so it is downloaded again"
 
 
 def load_openml(what: str) -> pd.DataFrame:
@@ -237,7 +278,7 @@ def load_openml(what: str) -> pd.DataFrame:
     rows = _task_folder(task_id) / "rows.parquet"
     if not rows.exists():
         _fetch_task(task_id, with_rows=True)
-    return pd.read_parquet(rows)
+    return read_state_parquet(rows, _refetch(task_id))
 
 
 def check_openml_task(task) -> None:

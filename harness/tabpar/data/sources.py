@@ -5,6 +5,7 @@ without a target, the seeded row cap, assembling and parsing dates, dropping col
 """
 from __future__ import annotations
 
+import codecs
 import csv
 import difflib
 import hashlib
@@ -15,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from tabpar.common.errors import UserError
+from tabpar.common.files import MAX_COLUMNS, open_regular, read_header_line
 from tabpar.data.suites import Task
 
 SKLEARN_LOADERS = ("iris", "wine", "breast_cancer", "diabetes", "digits")
@@ -102,54 +104,72 @@ def load_sklearn(name: str) -> pd.DataFrame:
 
 
 def read_table(path: Path) -> pd.DataFrame:
-    """Read a user's CSV or Parquet file, with one-sentence errors for the usual mistakes."""
+    """Read a user's CSV or Parquet file, with one-sentence errors for the usual mistakes.
+
+    The one reader of users' tables (sources, predictions files, leaderboard imports, calibrate
+    tables): only a regular file is read (``open_regular``), and a CSV header is bounded
+    (``MAX_HEADER_BYTES``, ``MAX_COLUMNS``) before pandas sees the file.
+    """
     path = Path(path)
-    if not path.exists():
-        raise UserError(f"File {path} does not exist; check the path.")
-    if path.is_dir():
-        raise UserError(f"{path} is a folder, not a CSV or Parquet file.")
     suffix = path.suffix.lower()
-    if suffix == ".parquet" or suffix == ".pq":
-        try:
-            frame = pd.read_parquet(path)
-        except Exception as exc:  # pyarrow raises several types for a bad file
-            raise UserError(f"{path} is not a readable Parquet file ({exc.__class__.__name__}); "
-                            f"check that it was written as Parquet.") from None
-    elif suffix in (".csv", ".txt", ".tsv"):
-        frame = _read_csv(path, sep="\t" if suffix == ".tsv" else ",")
-    else:
-        raise UserError(f"{path} is neither CSV (.csv) nor Parquet (.parquet); convert it or "
-                        f"rename it with the right extension.")
+    with open_regular(path, "File", fix="give a CSV or Parquet file") as handle:
+        if suffix not in (".parquet", ".pq", ".csv", ".txt", ".tsv"):
+            raise UserError(f"{path} is neither CSV (.csv) nor Parquet (.parquet); convert it "
+                            f"or rename it with the right extension.")
+        if suffix in (".parquet", ".pq"):
+            try:
+                frame = pd.read_parquet(handle)
+            except Exception as exc:  # pyarrow raises several types for a bad file
+                raise UserError(f"{path} is not a readable Parquet file "
+                                f"({exc.__class__.__name__}); check that it was written as "
+                                f"Parquet and is complete.") from None
+        else:
+            frame = _read_csv(handle, path, sep="\t" if suffix == ".tsv" else ",")
     duplicated = frame.columns[frame.columns.duplicated()].tolist()
     if duplicated:
         raise UserError(f"{path} has the column name '{duplicated[0]}' more than once; give "
                         f"every column a unique name.")
     if frame.shape[1] == 0:
         raise UserError(f"{path} has no columns.")
+    if frame.shape[1] > MAX_COLUMNS:
+        raise UserError(f"{path} has {frame.shape[1]:,} columns, more than the {MAX_COLUMNS:,} "
+                        f"tabpar prepares; keep the columns the task needs.")
     if len(frame) == 0:
         raise UserError(f"{path} has a header but no rows; it needs data.")
     return frame
 
 
-def _read_csv(path: Path, sep: str) -> pd.DataFrame:
+def _read_csv(handle, path: Path, sep: str) -> pd.DataFrame:
+    line = read_header_line(handle, path)
     try:
-        with open(path, newline="", encoding="utf-8") as handle:
-            header = next(csv.reader(handle, delimiter=sep), None)
+        # the header and the first 64 KiB after it (a multi-byte character may be cut there)
+        codecs.getincrementaldecoder("utf-8")().decode(line + handle.read(1 << 16))
+        header = next(csv.reader([line.decode("utf-8").rstrip("\r\n")], delimiter=sep), None)
     except UnicodeDecodeError:
         raise UserError(f"{path} is not a UTF-8 text file, so not a CSV tabpar can read; save "
                         f"it as UTF-8 CSV or Parquet.") from None
-    if header is None:
+    except csv.Error as exc:
+        raise UserError(f"The header line of {path} could not be read as CSV ({exc}); check "
+                        f"its quoting.") from None
+    if not line:
         raise UserError(f"{path} is empty; it needs a header row and data rows.")
+    if len(header or ()) > MAX_COLUMNS:
+        raise UserError(f"{path} has {len(header):,} columns, more than the {MAX_COLUMNS:,} "
+                        f"tabpar prepares; keep the columns the task needs.")
     seen = set()
-    for name in header:
+    for name in header or ():
         if name in seen:
             raise UserError(f"{path} has the column name '{name}' more than once; give every "
                             f"column a unique name.")
         seen.add(name)
+    handle.seek(0)
     try:
         # low_memory=False: types guessed from whole columns, not chunk by chunk (a long
         # column of numbers with a late text value would otherwise come back mixed)
-        return pd.read_csv(path, sep=sep, low_memory=False)
+        return pd.read_csv(handle, sep=sep, encoding="utf-8", low_memory=False)
+    except UnicodeDecodeError:
+        raise UserError(f"{path} is not a UTF-8 text file, so not a CSV tabpar can read; save "
+                        f"it as UTF-8 CSV or Parquet.") from None
     except (pd.errors.ParserError, ValueError) as exc:
         first = str(exc).strip().splitlines()[0]
         raise UserError(f"{path} could not be read as CSV ({first}); check its quoting and "

@@ -19,6 +19,7 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 from tabpar.common.errors import UserError
+from tabpar.common.files import read_bounded
 from tabpar.common.metrics import DEFAULT_METRIC, get_metric
 from tabpar.common.paths import builtin_folder
 from tabpar.data.suite_values import (
@@ -185,9 +186,7 @@ def resolve_suite_path(suite: str | Path) -> Path:
 
 def _read_toml(path: Path) -> dict:
     try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise UserError(f"Cannot read suite file {path}: {exc.strerror}.") from None
+        text = read_bounded(path, "Suite file", fix="give a .toml file").decode("utf-8")
     except UnicodeDecodeError:
         raise UserError(f"Suite file {path} is not UTF-8 text; save it as UTF-8.") from None
     try:

@@ -45,8 +45,10 @@ from tabpar.execution.store import (
     ResultsStore,
     align_to,
     atomic_write_text,
+    inside_folder,
     load_results,
     read_predictions,
+    read_run_meta,
 )
 from tabpar.models.zoo import check_models
 from tabpar.procedure.variants import builtin
@@ -194,7 +196,8 @@ def _seed_predictions(folder: Path, frame, task, model, seeds, row_id):
                      (frame["seed"] == seed) & (frame["status"] == "ok")]
         if rows.empty or not isinstance(rows["predictions"].iloc[-1], str):
             return None
-        aligned = align_to(*read_predictions(folder / rows["predictions"].iloc[-1]), row_id)
+        aligned = align_to(*read_predictions(folder / rows["predictions"].iloc[-1],
+                                             root=folder), row_id)
         if aligned is None:
             return None
         out.append(aligned)
@@ -256,7 +259,7 @@ def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, 
     ref = published_root() / "reference" / suite_name
     if not (ref / RUN_FILE).exists() or (base_out / RUN_FILE).exists():
         return 0
-    meta = json.loads((ref / RUN_FILE).read_text())
+    meta = read_run_meta(ref)
     rows = load_results(ref)
     versions = library_versions()
     current = {t.name: prepare_task(t).fingerprint for t in tasks}
@@ -275,9 +278,9 @@ def _seed_baseline_from_reference(suite_name: str, base_out: Path, tasks: list, 
     try:
         for row in keep.to_dict("records"):
             row = {k: v for k, v in row.items() if not (isinstance(v, float) and np.isnan(v))}
-            target = base_out / row["predictions"]
+            target = inside_folder(base_out, row["predictions"])
             target.parent.mkdir(parents=True, exist_ok=True)
-            shutil.copyfile(ref / row["predictions"], target)
+            shutil.copyfile(inside_folder(ref, row["predictions"]), target)
             store.append(row)
     finally:
         store.close()
@@ -311,7 +314,7 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
         f"compare-{suite_obj.name}-{datetime.now().strftime('%Y%m%d-%H%M%S')}")
     base_dir = Path(baseline) if (Path(baseline) / RUN_FILE).exists() else None
     if base_dir is not None:
-        base_meta = json.loads((base_dir / RUN_FILE).read_text())
+        base_meta = read_run_meta(base_dir)
         check_format(base_meta, base_dir)
         for task in selected:
             then = base_meta.get("tasks", {}).get(task.name, {}).get("fingerprint")
@@ -422,5 +425,5 @@ def compare(candidate: str, baseline: str = "builtin", suite: str = "quick", tas
 
 
 def _leakage_of(folder: Path, task: str) -> str | None:
-    meta = json.loads((folder / RUN_FILE).read_text())
+    meta = read_run_meta(folder)
     return meta.get("tasks", {}).get(task, {}).get("leakage")

@@ -28,6 +28,7 @@ from tabpar.execution.store import (
     atomic_write_text,
     load_results,
     read_predictions,
+    read_run_meta,
 )
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
@@ -146,7 +147,7 @@ class Reference:
 
     def __init__(self, folder: str | Path):
         self.folder = resolve_reference(folder)
-        self.meta = json.loads((self.folder / RUN_FILE).read_text(encoding="utf-8"))
+        self.meta = read_run_meta(self.folder)
         check_format(self.meta, self.folder)
         rows = load_results(self.folder)
         self.rows = rows[rows["status"] == "ok"] if not rows.empty else rows
@@ -207,7 +208,7 @@ class Reference:
         if rows.empty or not isinstance(rows["predictions"].iloc[0], str):
             raise UserError(f"The reference {self.folder} has no stored predictions for "
                             f"{task}/{model}; rebuild it.")
-        return read_predictions(self.folder / rows["predictions"].iloc[0])
+        return read_predictions(self.folder / rows["predictions"].iloc[0], root=self.folder)
 
     def difficulties(self) -> dict:
         """Task → difficulty (1 − headroom taken), for every task of the reference."""

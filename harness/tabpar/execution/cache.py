@@ -11,8 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
-from tabpar.common.files import atomic_folder, atomic_write_text
-from tabpar.common.paths import cache_root
+from tabpar.common.files import atomic_folder
+from tabpar.common.paths import CACHE_ENV, cache_root
 from tabpar.common.system import release_freed_memory
 from tabpar.common.text import plain
 from tabpar.data.sources import load_task
@@ -71,7 +71,13 @@ def _read_meta(folder: Path) -> dict | None:
         return None
     if not isinstance(meta, dict) or set(meta) != META_KEYS:
         return None
-    if not all((folder / f"{name}.npy").is_file() for name in ARRAYS):
+    try:  # a truncated array (a full disk, a copy cut short) is rebuilt, not read as EOF
+        arrays = load_arrays(folder)
+    except (OSError, ValueError):
+        return None
+    n_train, n_holdout = meta["n_train"], meta["n_holdout"]
+    if [len(arrays[name]) for name in ARRAYS] != [n_train, n_train, n_holdout, n_holdout,
+                                                  n_holdout]:
         return None
     if meta["sha256"] != _arrays_digest(folder):  # arrays replaced or damaged since written
         return None
@@ -117,10 +123,12 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     if folder.exists():  # a torn entry: replace it whole
         shutil.rmtree(folder, ignore_errors=True)
     # never a half-written entry; another process's entry with the same key is identical
-    with atomic_folder(folder, replace=False) as tmp:
+    with atomic_folder(folder, replace=False, fix=f"set {CACHE_ENV} to a writable folder with "
+                       f"free space (tabpar cache clear frees this one)") as tmp:
         for name in ARRAYS:
             np.save(tmp / f"{name}.npy", getattr(prepared, name))
-        atomic_write_text(tmp / "meta.json", json.dumps({**meta, "sha256": _arrays_digest(tmp)}))
+        # the folder is the atomic unit; the arrays' hash catches an entry replaced later
+        (tmp / "meta.json").write_text(json.dumps({**meta, "sha256": _arrays_digest(tmp)}))
     return PreparedTask(task=task, folder=folder, **meta)
 
 
@@ -132,10 +140,11 @@ def cache_info(cache_dir: Path | None = None) -> dict:
         if not (folder / "meta.json").exists():
             continue
         size = sum(f.stat().st_size for f in folder.iterdir() if f.is_file())
-        meta = json.loads((folder / "meta.json").read_text())
+        meta = _read_meta(folder)  # None: torn (prepared again when next used)
         entries.append({"entry": folder.name, "task": folder.name.rsplit("-", 1)[0],
-                        "procedure": meta.get("procedure", "builtin"),
-                        "rows": meta["n_train"] + meta["n_holdout"], "mb": size / 1e6})
+                        "procedure": meta["procedure"] if meta else "torn, rebuilt when used",
+                        "rows": meta["n_train"] + meta["n_holdout"] if meta else 0,
+                        "mb": size / 1e6})
     return {"folder": str(root), "entries": entries,
             "total_mb": sum(e["mb"] for e in entries)}
 
@@ -153,6 +162,15 @@ def cache_clear(cache_dir: Path | None = None) -> int:
 
 
 def load_arrays(folder: Path) -> dict:
-    """A cache entry's arrays, memory-mapped read-only (``ARRAYS`` are the keys)."""
-    return {name: np.load(Path(folder) / f"{name}.npy", mmap_mode="r")
-            for name in ARRAYS}
+    """A cache entry's arrays, memory-mapped read-only (``ARRAYS`` are the keys).
+
+    FileNotFoundError naming the entry when it was removed meanwhile (``tabpar cache clear``
+    while a run used it): that job fails, and the next run prepares the entry again.
+    """
+    try:
+        return {name: np.load(Path(folder) / f"{name}.npy", mmap_mode="r")
+                for name in ARRAYS}
+    except FileNotFoundError:
+        raise FileNotFoundError(f"the prepared-array cache entry {folder} was removed while "
+                                f"in use (tabpar cache clear?); run again to prepare it "
+                                f"anew") from None

@@ -223,15 +223,16 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
     return result
 
 
-def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict) -> None:
+def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict,
+            row_ids: dict) -> None:
     row = result["row"]
     p = by_name[row["task"]]
     row.update(n_train=p.n_train, n_holdout=p.n_holdout, n_features=len(p.feature_names),
                versions=versions, predictions=None)
     if result["prediction"] is not None:
-        row_id = np.load(p.folder / "row_id.npy")
         row["predictions"] = store.write_predictions(row["task"], row["model"], row["seed"],
-                                                     row_id, result["prediction"])
+                                                     row_ids[row["task"]],
+                                                     result["prediction"])
     store.append(row)
 
 
@@ -239,12 +240,16 @@ def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
              executor: str = "local", scheduler: str | None = None) -> bool:
     """Run the jobs, recording each as it finishes; True when interrupted (Ctrl-C/SIGTERM)."""
     by_name = {p.task.name: p for p in prepared}
+    # held in memory (n_holdout integers per task), so a cache entry removed during the run
+    # (tabpar cache clear) cannot lose a job that finished
+    row_ids = {p.task.name: np.array(np.load(p.folder / "row_id.npy"))
+               for p in prepared if any(job["task"] == p.task.name for job in todo)}
 
     def on_term(signum, frame):
         raise KeyboardInterrupt
 
     def on_result(job, result):
-        _record(result, store, versions, by_name)
+        _record(result, store, versions, by_name, row_ids)
         bar.step(f"{job['task']}/{job['model']}")
 
     def on_lost(job, reason, status):

@@ -9,12 +9,19 @@ import numpy as np
 import pandas as pd
 
 from tabpar.common.errors import UserError
-from tabpar.common.files import atomic_write_bytes, atomic_write_text
+from tabpar.common.files import (
+    atomic_write_bytes,
+    atomic_write_text,
+    check_fields,
+    read_state_json,
+    read_state_parquet,
+)
 from tabpar.common.metrics import get_metric
+from tabpar.common.paths import OPENML_CACHE_ENV
 from tabpar.data.openml_source import (
     OfflineError,
-    import_openml,
     openml_cache_dir,
+    openml_session,
     openml_task_info,
     parse_task_id,
     server_calls,
@@ -60,17 +67,23 @@ def fetch_openml_evaluations(task_id: int, measure: str) -> tuple[pd.DataFrame, 
     cached answer is used and the returned dict says so (``from_cache``, ``fetched_at``).
     """
     data_path, meta_path = _evaluations_cache(task_id, measure)
-    openml = import_openml()
     what = f"the {measure} run evaluations of OpenML task {task_id}"
     try:
-        with server_calls(openml, what):
+        with openml_session() as openml, server_calls(openml, what):
             frame = openml.evaluations.list_evaluations(
                 function=measure, tasks=[task_id], size=None, output_format="dataframe")
+            server, version = str(openml.config.server), str(getattr(openml, "__version__", ""))
     except OfflineError:
         if not (data_path.exists() and meta_path.exists()):
             raise
-        info = json.loads(meta_path.read_text(encoding="utf-8"))
-        return pd.read_parquet(data_path), {**info, "from_cache": True}
+        fix = f"delete {data_path} and {meta_path}, and pull again with a network"
+        info = read_state_json(meta_path, fix)
+        check_fields(info, {"fetched_at": str}, str(meta_path), fix)
+        cached = read_state_parquet(data_path, fix)
+        if not {"run_id", "flow_id", "value"} <= set(cached.columns):
+            raise UserError(f"The cached evaluations {data_path} lack run_id, flow_id or "
+                            f"value; {fix}.")
+        return cached, {**info, "from_cache": True}
     if frame is None or len(frame) == 0:
         raise UserError(f"OpenML lists no runs of task {task_id} evaluated on {measure}; "
                         f"choose another --metric or task.")
@@ -80,15 +93,12 @@ def fetch_openml_evaluations(task_id: int, measure: str) -> tuple[pd.DataFrame, 
                         f"column; upgrade it with pip install -U openml.")
     frame = frame[[c for c in _OPENML_COLUMNS if c in frame.columns]].copy()
     frame["value"] = pd.to_numeric(frame["value"], errors="coerce")
-    info = {"openml_task": task_id, "measure": measure, "server": str(openml.config.server),
-            "openml_version": str(getattr(openml, "__version__", "")), "fetched_at": now_iso()}
-    try:  # kept so a later pull without a network can still answer, saying it is cached
-        atomic_write_bytes(data_path, frame.to_parquet(index=False))
-        atomic_write_text(meta_path, json.dumps(info, indent=2))
-    except OSError as exc:
-        raise UserError(f"Cannot write the OpenML cache folder {openml_cache_dir()} "
-                        f"({exc.strerror}); set TABPAR_OPENML_CACHE to a writable "
-                        f"folder.") from None
+    info = {"openml_task": task_id, "measure": measure, "server": server,
+            "openml_version": version, "fetched_at": now_iso()}
+    # kept so a later pull without a network can still answer, saying it is cached
+    fix = f"set {OPENML_CACHE_ENV} to a writable folder with free space"
+    atomic_write_bytes(data_path, frame.to_parquet(index=False), fix)
+    atomic_write_text(meta_path, json.dumps(info, indent=2), fix)
     return frame, {**info, "from_cache": False}
 
 

@@ -22,6 +22,7 @@ import difflib
 import hashlib
 import json
 import re
+import warnings
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -30,7 +31,15 @@ import numpy as np
 import pandas as pd
 
 from tabpar.common.errors import UserError
-from tabpar.common.files import atomic_write_bytes, atomic_write_text
+from tabpar.common.files import (
+    StateWarning,
+    atomic_write_bytes,
+    atomic_write_text,
+    check_fields,
+    open_regular,
+    read_state_json,
+    read_state_parquet,
+)
 from tabpar.common.metrics import Metric, get_metric
 from tabpar.common.paths import LEADERBOARDS_ENV as STORE_ENV
 from tabpar.common.paths import leaderboard_store
@@ -223,10 +232,11 @@ def save_leaderboard(entries: pd.DataFrame, meta: dict, name: str, store, replac
             previous = None
     meta = {"format": FORMAT, "name": name, **meta, "entries_file": data_path.name,
             "entries_sha256": digest, "created_at": now_iso()}
+    fix = f"choose another store with --store or {STORE_ENV}, or free disk space there"
     try:
         folder.mkdir(parents=True, exist_ok=True)
-        atomic_write_bytes(data_path, payload)
-        atomic_write_text(meta_path, json.dumps(meta, indent=2, default=str))
+        atomic_write_bytes(data_path, payload, fix)
+        atomic_write_text(meta_path, json.dumps(meta, indent=2, default=str), fix)
     except OSError as exc:
         raise UserError(f"Cannot write to the leaderboard store {folder} ({exc.strerror}); "
                         f"choose another with --store or {STORE_ENV}.") from None
@@ -275,7 +285,8 @@ def import_leaderboard(path: str | Path, task: str, score_column: str,
         metric, direction_from = (known if agrees else None), flag
     name = sanitise_name(name if name is not None else path.stem)
     refuse_existing([name], store, replace)
-    data = path.read_bytes()
+    with open_regular(path, "File", fix="give a CSV or Parquet file") as handle:
+        data = handle.read()  # for the checksum of what was imported
     meta = {"kind": "imported", "view": "as published", "task": task,
             "score_column": str(score_column), "lower_is_better": bool(lower_is_better),
             "metric": metric, "direction_from": direction_from, "n_entries": len(frame),
@@ -286,19 +297,41 @@ def import_leaderboard(path: str | Path, task: str, score_column: str,
     return save_leaderboard(frame, meta, name, store, replace)
 
 
+# what a stored leaderboard's meta file must hold, and of which JSON type
+META_FIELDS = {"format": int, "name": str, "task": str, "score_column": str,
+               "lower_is_better": bool, "n_entries": int, "entries_file": str,
+               "entries_sha256": str}
+
+
+def _read_meta(meta_path: Path) -> dict:
+    """A leaderboard's meta file, checked against ``META_FIELDS`` (so ``"no"`` is never read
+    as a direction)."""
+    fix = "import or pull it again with --replace, or delete it"
+    meta = read_state_json(meta_path, fix, what=f"The leaderboard {meta_path}")
+    check_fields(meta, META_FIELDS, f"The leaderboard {meta_path}", fix)
+    if meta["format"] != FORMAT:
+        raise UserError(f"The leaderboard {meta_path} was stored in format {meta['format']}, "
+                        f"this tabpar reads {FORMAT}; {fix}.")
+    return meta
+
+
 def _read(meta_path: Path) -> Leaderboard:
+    meta = _read_meta(meta_path)
+    fix = "import or pull it again with --replace"
+    entries_path = meta_path.parent / Path(meta["entries_file"]).name
     try:
-        meta = json.loads(meta_path.read_text(encoding="utf-8"))
-        entries_path = meta_path.parent / Path(meta["entries_file"]).name
-        payload = entries_path.read_bytes()
-    except (OSError, ValueError, KeyError, TypeError):
-        raise UserError(f"The leaderboard {meta_path} is unreadable or incomplete; import or "
-                        f"pull it again with --replace.") from None
+        with open_regular(entries_path, "The entries file", fix=fix) as handle:
+            payload = handle.read()
+    except UserError:
+        raise UserError(f"The entries file {entries_path} of leaderboard {meta_path} is missing "
+                        f"or not a file; {fix}.") from None
     if hashlib.sha256(payload).hexdigest() != meta.get("entries_sha256"):
         raise UserError(f"The entries of leaderboard {meta_path} do not match its meta file "
-                        f"(changed, or an interrupted write); import or pull it again with "
-                        f"--replace.")
-    entries = pd.read_parquet(entries_path)
+                        f"(changed, or an interrupted write); {fix}.")
+    entries = read_state_parquet(entries_path, fix)
+    if meta["score_column"] not in entries.columns:
+        raise UserError(f"The entries of leaderboard {meta_path} lack its score column "
+                        f"'{meta['score_column']}'; {fix}.")
     return Leaderboard(name=meta["name"], path=meta_path, meta=meta, entries=entries)
 
 
@@ -329,10 +362,7 @@ def list_leaderboards(store: str | Path | None = None) -> list[dict]:
     for folder in _folders(store):
         for meta_path in sorted(folder.glob("*.json")) if folder.is_dir() else []:
             try:
-                meta = json.loads(meta_path.read_text(encoding="utf-8"))
-                if meta.get("format") != FORMAT:
-                    continue
-                found.append(_summary(meta, meta_path))
-            except (OSError, ValueError, KeyError, TypeError):
-                continue  # not a leaderboard's meta file
+                found.append(_summary(_read_meta(meta_path), meta_path))
+            except UserError as exc:  # listed without it; loading it by name says the same
+                warnings.warn(f"{exc} (left out of the list)", StateWarning, stacklevel=2)
     return found

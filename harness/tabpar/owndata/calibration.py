@@ -12,8 +12,8 @@ the ``Calibration``, by ``tabpar.report.learning_curve.save_calibration_plots``.
 from __future__ import annotations
 
 import contextlib
-import json
 import math
+import os
 import signal
 import threading
 import time
@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from tabpar.common.errors import UserError
+from tabpar.common.files import read_state_json
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import available_cores
 from tabpar.common.text import plain
@@ -135,8 +136,9 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
     difficulties, suite_folder, suite_note = suite_difficulties(reference, task.type)
     out = Path(out) if out is not None else (
         Path("runs") / f"calibrate-{task.name}-{datetime.now():%Y%m%d-%H%M%S}")
-    if (out / "report.json").exists():
-        old = json.loads((out / "report.json").read_text(encoding="utf-8"))
+    if os.path.lexists(out / "report.json"):
+        old = read_state_json(out / "report.json", f"delete it to calibrate into {out} afresh, "
+                              f"or choose another --out")
         if old.get("task") != task.definition():
             raise UserError(f"{out} holds a calibration of other data or options; choose "
                             f"another --out.")

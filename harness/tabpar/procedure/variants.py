@@ -24,6 +24,7 @@ from pathlib import Path
 from typing import Callable
 
 from tabpar.common.errors import UserError
+from tabpar.common.files import read_bounded
 from tabpar.data.suites import Task, tomllib
 from tabpar.procedure.baseline import BaselinePrep
 
@@ -69,9 +70,10 @@ def builtin() -> Procedure:
 
 def _variant(path: Path) -> Procedure:
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise UserError(f"Cannot read variant file {path}: {exc.strerror}.") from None
+        raw = tomllib.loads(read_bounded(path, "Variant file", fix="give a .toml file")
+                            .decode("utf-8"))
+    except UnicodeDecodeError:
+        raise UserError(f"Variant file {path} is not UTF-8 text; save it as UTF-8.") from None
     except tomllib.TOMLDecodeError as exc:
         raise UserError(f"Variant file {path} is not valid TOML: {exc}; fix that line.") \
             from None

@@ -22,7 +22,13 @@ from tabpar.common.system import available_cores
 from tabpar.common.text import html_table
 from tabpar.data.suites import Suite, load_suite
 from tabpar.execution.cache import PreparedTask, prepare_task
-from tabpar.execution.executors import DaskPool, LocalPool, connect_check
+from tabpar.execution.executors import (
+    DaskPool,
+    LocalPool,
+    connect_check,
+    missing_guard_error,
+    unguarded_main_call,
+)
 from tabpar.execution.jobs import (
     execute_job,
     in_memory,
@@ -203,9 +209,12 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         todo = [j for j in jobs if (j["task"], j["model"], j["seed"]) not in done]
         todo.sort(key=lambda j: -j["cost"])  # longest first balances the workers
         reused = len(jobs) - len(todo)
-        if executor == "local" and threads_per_model is None and 0 < len(todo) < workers:
-            # fewer jobs than workers: give each job the cores the idle workers would have had
-            threads = max(1, cores // len(todo))
+        in_process = _in_process(todo, workers, job_timeout, executor)
+        if executor == "local" and threads_per_model is None and todo and (
+                in_process or len(todo) < workers):
+            # jobs one after another, or fewer jobs than workers: give each job the cores the
+            # idle workers would have had
+            threads = cores if in_process else max(1, cores // len(todo))
             for job in todo:
                 job["threads"] = threads
         if todo or meta != old_meta:
@@ -217,7 +226,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         versions = meta.get("versions")
         bar = Progress(len(todo), progress)
         interrupted = _execute(todo, workers, store, versions, prepared, bar, job_timeout,
-                               executor, scheduler)
+                               executor, scheduler, in_process)
         bar.close()
     finally:
         store.close()
@@ -238,8 +247,21 @@ def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict) ->
     store.append(row)
 
 
+def _in_process(todo, workers, job_timeout, executor) -> bool:
+    """Whether the jobs run in this process: one job or one worker (no process is worth
+    starting), or a script without a ``__main__`` guard (a worker would run it again)."""
+    if executor != "local":
+        return False
+    unguarded = unguarded_main_call()
+    if unguarded and job_timeout is not None:
+        raise missing_guard_error("A per-job time limit (--job-timeout) needs worker "
+                                  "processes, and each would run the calling script again")
+    return job_timeout is None and (min(workers, len(todo)) <= 1 or unguarded)
+
+
 def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
-             executor: str = "local", scheduler: str | None = None) -> bool:
+             executor: str = "local", scheduler: str | None = None,
+             in_process: bool = False) -> bool:
     """Run the jobs, recording each as it finishes; True when interrupted (Ctrl-C/SIGTERM)."""
     by_name = {p.task.name: p for p in prepared}
 
@@ -258,8 +280,8 @@ def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
         if executor == "dask":
             DaskPool(execute_job, scheduler, payload=in_memory,
                      payload_key=lambda job: job["folder"]).run(todo, on_result, on_lost)
-        elif workers == 1 and job_timeout is None:
-            for job in todo:  # in this process: no start-up cost, easy to debug
+        elif in_process:  # no start-up cost (a worker imports the libraries again), easy to debug
+            for job in todo:
                 on_result(job, execute_job(job))
         else:
             warm = functools.partial(warm_imports, sorted({job["model"] for job in todo}))

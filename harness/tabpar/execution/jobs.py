@@ -12,6 +12,7 @@ import numpy as np
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import release_freed_memory
 from tabpar.execution.cache import PreparedTask, load_arrays
+from tabpar.execution.estimates import predict_seconds
 from tabpar.execution.provenance import preparation_code_digest
 from tabpar.models.predict import predict
 from tabpar.models.zoo import MODELS, build_model
@@ -99,9 +100,11 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
                              "log_target": t.log_target, "fingerprint": p.fingerprint,
                              "procedure": p.procedure, "threads": threads,
                              "code": preparation_code_digest(),
-                             "folder": str(p.folder),
-                             "cost": MODELS[model].cost(t.type) * p.n_train
-                             * len(p.feature_names) / 1e6})
+                             "folder": str(p.folder), "n_train": p.n_train,
+                             "n_features": len(p.feature_names),
+                             # predicted seconds on the references' machine: longest first
+                             "cost": predict_seconds(model, t.type, p.n_train,
+                                                     len(p.feature_names), threads, "job")})
     return jobs
 
 

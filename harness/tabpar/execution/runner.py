@@ -224,7 +224,7 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
             meta["executor"] = executor if executor == "local" else f"dask {scheduler}"
             store.write_meta(meta)
         versions = meta.get("versions")
-        bar = Progress(len(todo), progress)
+        bar = Progress(len(todo), progress, jobs=todo, workers=1 if in_process else workers)
         interrupted = _execute(todo, workers, store, versions, prepared, bar, job_timeout,
                                executor, scheduler, in_process)
         bar.close()
@@ -270,7 +270,7 @@ def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
 
     def on_result(job, result):
         _record(result, store, versions, by_name)
-        bar.step(f"{job['task']}/{job['model']}")
+        bar.step(f"{job['task']}/{job['model']}", job, result["row"].get("fit_seconds"))
 
     def on_lost(job, reason, status):
         on_result(job, lost_row(job, reason, status))

@@ -18,6 +18,9 @@ from pathlib import Path
 
 from tabpar.common.errors import UserError
 
+# spawn, not a forkserver: a forkserver that had imported the libraries started workers far
+# faster (bench/parallel.py --start-methods), but it lives as long as this process and keeps
+# the environment of its first start, so a later run's environment would not reach its workers
 _CONTEXT = get_context("spawn")
 
 
@@ -83,7 +86,7 @@ def _worker_main(conn, function, initializer, parent_pid):
     # the parent handles Ctrl-C and SIGTERM and stops its workers itself
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _die_with_parent()
-    if os.getppid() != parent_pid:  # the parent died before the request took effect
+    if parent_pid is not None and os.getppid() != parent_pid:  # the parent died first
         return
     if initializer is not None:
         initializer()  # imports up front, so a job's time limit measures the job alone
@@ -102,8 +105,10 @@ def _worker_main(conn, function, initializer, parent_pid):
 class _Worker:
     def __init__(self, function, initializer):
         self.conn, child = _CONTEXT.Pipe()
+        # a forkserver's worker is the forkserver's child, not this process's
+        parent = os.getpid() if _CONTEXT.get_start_method() == "spawn" else None
         self.process = _CONTEXT.Process(target=_worker_main,
-                                        args=(child, function, initializer, os.getpid()),
+                                        args=(child, function, initializer, parent),
                                         daemon=True)
         self.process.start()
         child.close()

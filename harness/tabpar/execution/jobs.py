@@ -3,6 +3,7 @@
 boundaries; its result is the row the store records plus the holdout predictions."""
 from __future__ import annotations
 
+import contextlib
 import time
 from datetime import datetime, timezone
 from functools import lru_cache
@@ -69,7 +70,11 @@ def _fit_and_score(job: dict) -> dict:
         X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
         y_fit = np.log1p(y_train) if job["log_target"] else y_train
         model = build_model(job["model"], task_type, job["seed"], job["threads"])
-        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]):
+        # the naive floor (a mean or class shares) runs no thread pool: finding the pools
+        # (and importing the ensembles' library to do so) would cost more than its fit
+        limit = (contextlib.nullcontext() if job["model"] == "naive"
+                 else _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]))
+        with limit:
             t0 = time.perf_counter()
             model.fit(X_train, y_fit)
             t1 = time.perf_counter()

@@ -248,3 +248,35 @@ def test_eta_weighs_the_jobs_left_by_their_predicted_time(monkeypatch):
     now[0] = 2 * clock.job_seconds(big)
     bar.step("t/rf", big, fit_seconds=2 * clock.fit_seconds(big))
     assert bar.eta_seconds() == pytest.approx(2 * clock.job_seconds(small), rel=1e-6)
+
+
+def test_budget_is_not_inflated_by_a_small_tables_slow_diagnostic_fit(monkeypatch):
+    # the failure reported on a daily table of a few thousand rows: the diagnostics' LightGBM
+    # fit (mostly start-up at that size) made the forests look 40 times slower than they were,
+    # and the budget skipped them. Stand-in runs here: fixed wall times, no fits.
+    from types import SimpleNamespace
+
+    from tabpar.owndata import budget
+
+    clock = [0.0]
+    monkeypatch.setattr(budget.time, "monotonic", lambda: clock[0])
+
+    def stand_in_run(suite, models, **kwargs):
+        (model,) = models
+        # bookkeeping 0.3 s a run, plus each model's reference-predicted time
+        clock[0] += 0.3 + predict_seconds(model, "regression", 3000, 20, threads=2,
+                                          target="job")
+        return SimpleNamespace(failures=[], tasks={"daily": {
+            "n_train": 3000, "n_features": 20, "models": {model: {}}}})
+
+    monkeypatch.setattr(budget, "run_suite", stand_in_run)
+    monkeypatch.setattr(budget, "available_cores", lambda: 2, raising=False)
+    suite = SimpleNamespace(tasks=[SimpleNamespace(type="regression")])
+    order = budget.zoo_order(None, "regression")
+    whole_zoo = sum(0.3 + predict_seconds(m, "regression", 3000, 20, threads=2, target="job")
+                    for m in order)
+    slow_small_fit = budget.seconds_per_cost(2.0, "regression")  # 2 s for a 0.1 s fit
+    # a budget one second longer than the whole zoo takes: only estimates near the truth fit
+    ran, skipped, failures, overrun = budget.run_zoo(
+        suite, order, 1, None, 1, whole_zoo + 1.0, 0.0, slow_small_fit, lambda message: None)
+    assert skipped == [] and set(ran) == set(order) and overrun is None

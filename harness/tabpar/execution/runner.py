@@ -4,7 +4,9 @@ the append-only results store.
 Each task is loaded, split and prepared once, in the parent process, and its arrays are written
 to the on-disk cache; worker processes memory-map them, so no job repeats that work and no large
 array crosses a pipe. Jobs run in ``spawn``-started worker processes, each model limited to
-``cores // workers`` threads so the machine is never oversubscribed.
+``cores // workers`` threads so the machine is never oversubscribed; a single job, one worker,
+or a script whose workers would re-run it (no ``__main__`` guard) runs them in this process with
+every core. Jobs start longest first by predicted time (``estimates``).
 """
 from __future__ import annotations
 
@@ -139,7 +141,9 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         The results folder (default ``runs/SUITE-DATE-TIME``); a rerun with the same folder
         skips the jobs already finished.
     workers : int, optional
-        Local worker processes (default: one per core); 1 runs in this process.
+        Local worker processes (default: one per core), never more than there are jobs; 1,
+        a single job, or a call from a script's top level outside
+        ``if __name__ == "__main__":`` runs the jobs in this process.
     job_timeout : float, optional
         Seconds after which a local job is stopped and recorded as timed out.
     procedure : Procedure, optional

@@ -22,6 +22,10 @@ from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS, check_models
 
 # the zoo also predicts the training rows; a diagnostic fit only predicts the holdout
 TRAIN_PREDICT_FACTOR = 1.5
+# a fit predicted shorter than this says more about fixed costs than about the machine's speed
+# (a LightGBM fit of a few thousand rows is mostly start-up: scaling the forests by it
+# overestimated them up to 40-fold)
+LEARN_FROM_SECONDS = 0.5
 
 
 def zoo_order(models=None, task_type: str = "regression") -> list[str]:
@@ -114,7 +118,11 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
     kind = suite.tasks[0].type
     ran, skipped, failures = [], [], []
     have_ensemble, stopped = False, False
-    sizes, ratios = None, []  # (training rows, features) once the first model has prepared them
+    sizes = None  # (training rows, features) once the first model has prepared them
+    # this machine's speed against the references' (actual / predicted seconds), learnt only
+    # from fits long enough not to be swamped by fixed costs, and the fixed cost of one run of
+    # a model (bookkeeping: cached arrays, predictions file, results line), from the short ones
+    ratios, overhead = [], 0.0
 
     def predicted(model, target="job"):
         return predict_seconds(model, kind, *sizes, threads=threads, target=target)
@@ -122,12 +130,14 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
     for model in order:
         required = model == "naive" or (model in DEFAULT_ENSEMBLES and not have_ensemble)
         if budget is not None and not required and sizes is not None:
-            if not ratios and rate is not None:  # the diagnostics' full-size LightGBM fit
+            if rate is not None and predicted("lgbm", "fit") >= LEARN_FROM_SECONDS:
+                # the diagnostics' full-size LightGBM fit, used once
                 lgbm_fit = rate * MODELS["lgbm"].cost(kind) / TRAIN_PREDICT_FACTOR
-                ratios.append(lgbm_fit / max(predicted("lgbm", "fit"), 1e-3))
+                ratios.append(lgbm_fit / predicted("lgbm", "fit"))
+                rate = None
             scale = float(np.median(ratios)) if ratios else 1.0
             left = budget - (time.monotonic() - started)
-            estimate = scale * predicted(model) * rounds
+            estimate = overhead + scale * predicted(model) * rounds
             # once one model does not fit, no costlier one is started either
             if stopped or estimate > left:
                 stopped = True
@@ -148,8 +158,10 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
         if ok:
             ran.append(model)
             have_ensemble = have_ensemble or model in DEFAULT_ENSEMBLES
-            if predicted(model) * rounds >= 0.05:  # shorter runs are mostly bookkeeping
-                ratios.append(seconds / (predicted(model) * rounds))
+            if predicted(model) * rounds >= LEARN_FROM_SECONDS:
+                ratios.append(max(seconds - overhead, 0.0) / (predicted(model) * rounds))
+            else:  # mostly bookkeeping: the latest such run is the fixed cost to expect
+                overhead = seconds
     overrun = None
     if budget is not None and time.monotonic() - started > budget:
         overrun = ("the model zoo ran past its share of the budget: the naive floor and one "

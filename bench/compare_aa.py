@@ -43,7 +43,6 @@ def main():
     parser.add_argument("--workers", type=int, default=None)
     args = parser.parse_args()
     from scipy import stats
-
     from tabpar.evaluation.comparison import compare
 
     tasks = args.tasks.split(",") if args.tasks else None

@@ -6,7 +6,13 @@ thread per model (the process-level scaling the target is about), one worker wit
 thread count (cores per model: the models' own threads already use both cores), two workers
 with one thread each (the default).
 
+``--start-methods``: how long a pool of two workers takes to run four small LightGBM jobs
+(quick attrition) when its workers are started by ``spawn`` (each imports the libraries) or
+forked from a forkserver that has imported them, three pools in a row in one new process each
+(the first forkserver pool pays for starting the forkserver).
+
     python bench/parallel.py [--seeds 3]
+    python bench/parallel.py --start-methods
 """
 import argparse
 import json
@@ -19,14 +25,54 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _common import machine  # noqa: E402
 
 
+def pool_timing(method: str) -> None:
+    import functools
+    import multiprocessing
+
+    import tabpar.execution.executors as executors
+    from tabpar.data.suites import load_suite
+    from tabpar.execution.cache import prepare_task
+    from tabpar.execution.jobs import execute_job, plan_jobs, warm_imports
+
+    prepared = prepare_task(load_suite("quick").task("attrition"))
+    jobs = plan_jobs([prepared], ["lgbm"], [0, 1, 2, 3], 1)
+    context = multiprocessing.get_context(method)
+    if method == "forkserver":
+        context.set_forkserver_preload(["tabpar.execution.jobs", "sklearn.ensemble", "lightgbm"])
+    executors._CONTEXT = context
+    for _ in range(3):
+        start = time.perf_counter()
+        executors.LocalPool(execute_job, 2, None,
+                            initializer=functools.partial(warm_imports, ["lgbm"])).run(
+            jobs, lambda job, result: None, lambda job, reason, status: None)
+        print(f"{time.perf_counter() - start:.2f}", end=" ", flush=True)
+
+
+def start_methods() -> None:
+    import subprocess
+
+    for _ in range(2):
+        for method in ("spawn", "forkserver"):
+            done = subprocess.run([sys.executable, __file__, "--pool-timing", method],
+                                  capture_output=True, text=True, check=True)
+            print(f"{method:10s} three pools in a row: {done.stdout.strip()} s")
+    print(f"machine: {machine()}")
+
+
 def main():
     parser = argparse.ArgumentParser()
     parser.add_argument("--seeds", type=int, default=3)
+    parser.add_argument("--start-methods", action="store_true")
+    parser.add_argument("--pool-timing", default=None)
     args = parser.parse_args()
+    if args.pool_timing:
+        return pool_timing(args.pool_timing)
+    if args.start_methods:
+        return start_methods()
     from tabpar.common.system import available_cores
+    from tabpar.data.suites import load_suite
     from tabpar.execution.cache import prepare_task
     from tabpar.execution.runner import run_suite
-    from tabpar.data.suites import load_suite
 
     for task in load_suite("quick").tasks:
         prepare_task(task)  # warm the cache so both runs do the same work

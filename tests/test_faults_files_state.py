@@ -36,7 +36,6 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 import pytest
-
 import tabpar
 from tabpar.cli.main import main
 from tabpar.common.errors import UserError

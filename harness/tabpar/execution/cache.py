@@ -15,6 +15,11 @@ from tabpar.common.files import atomic_folder
 from tabpar.common.paths import CACHE_ENV, cache_root
 from tabpar.common.system import release_freed_memory
 from tabpar.common.text import plain
+from tabpar.data.source_index import (
+    known_fingerprint,
+    remember_fingerprint,
+    source_identity,
+)
 from tabpar.data.sources import load_task
 from tabpar.data.split import split_loaded
 from tabpar.data.suites import Task
@@ -100,11 +105,20 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
     """Load, split and prepare one task with ``procedure`` (default: the built-in baseline),
     or reuse its cached arrays.
 
-    The source is always read, so a change to the data (a new fingerprint) is never served
-    stale arrays.
+    The source is read unless its file is unchanged since its fingerprint was taken
+    (``tabpar.data.source_index``), so a change to the data (a new fingerprint) is never
+    served stale arrays.
     """
     procedure = procedure or builtin()
+    known = known_fingerprint(task, cache_dir)
+    if known is not None:  # the warm path: no decompressing, no hashing
+        folder = _entry_folder(task, known, procedure, cache_dir)
+        meta = _read_meta(folder)
+        if meta is not None and meta["fingerprint"] == known:
+            return PreparedTask(task=task, folder=folder, **meta)
+    identity = source_identity(task)  # before reading: a change during the read shows later
     loaded = load_task(task)
+    remember_fingerprint(task, identity, loaded.fingerprint, cache_dir)
     folder = _entry_folder(task, loaded.fingerprint, procedure, cache_dir)
     meta = _read_meta(folder)
     if meta is not None:

@@ -14,10 +14,59 @@ import sys
 import time
 from multiprocessing import get_context
 from multiprocessing.connection import wait
+from pathlib import Path
 
 from tabpar.common.errors import UserError
 
+# spawn, not a forkserver: a forkserver that had imported the libraries started workers far
+# faster (bench/parallel.py --start-methods), but it lives as long as this process and keeps
+# the environment of its first start, so a later run's environment would not reach its workers
 _CONTEXT = get_context("spawn")
+
+
+def missing_guard_error(what: str) -> UserError:
+    """The UserError for a script whose worker processes would re-run it: ``what`` says what
+    went wrong, the rest how to fix it."""
+    return UserError(f"{what}: a script that calls tabpar must do so under "
+                     f"'if __name__ == \"__main__\":', as each worker process imports the "
+                     f"script again; add that guard or pass workers=1.")
+
+
+def unguarded_main_call() -> bool:
+    """True when the caller runs in a script's top-level code outside an
+    ``if __name__ == "__main__":`` block: a spawned worker imports the main script again, so
+    it would run that code (and start workers of its own) instead of a job.
+
+    Examples
+    --------
+    >>> unguarded_main_call()  # called from a function of a module, not a script's top level
+    False
+    """
+    main = sys.modules.get("__main__")
+    main_globals = getattr(main, "__dict__", None)
+    frame = sys._getframe(1)
+    while frame is not None:
+        if frame.f_globals is main_globals and frame.f_code.co_name == "<module>":
+            return not _inside_name_guard(frame.f_code.co_filename, frame.f_lineno)
+        frame = frame.f_back
+    return False
+
+
+def _inside_name_guard(path: str, line: int) -> bool:
+    """Whether ``line`` of the script at ``path`` lies in a top-level ``if`` on ``__name__``
+    (an unreadable script counts as guarded: workers could not re-run it either)."""
+    import ast
+
+    try:
+        tree = ast.parse(Path(path).read_text(encoding="utf-8"))
+    except (OSError, SyntaxError, UnicodeDecodeError, ValueError):
+        return True
+    for node in tree.body:
+        if isinstance(node, ast.If) and node.body and any(
+                isinstance(n, ast.Name) and n.id == "__name__" for n in ast.walk(node.test)):
+            if node.body[0].lineno <= line <= (node.end_lineno or line):
+                return True
+    return False
 
 
 def _die_with_parent() -> None:
@@ -37,11 +86,12 @@ def _worker_main(conn, function, initializer, parent_pid):
     # the parent handles Ctrl-C and SIGTERM and stops its workers itself
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _die_with_parent()
-    if os.getppid() != parent_pid:  # the parent died before the request took effect
+    if parent_pid is not None and os.getppid() != parent_pid:  # the parent died first
         return
     if initializer is not None:
         initializer()  # imports up front, so a job's time limit measures the job alone
     try:
+        conn.send(("ready", None))  # a worker that dies before this died while starting
         while True:
             job = conn.recv()
             if job is None:
@@ -55,13 +105,16 @@ def _worker_main(conn, function, initializer, parent_pid):
 class _Worker:
     def __init__(self, function, initializer):
         self.conn, child = _CONTEXT.Pipe()
+        # a forkserver's worker is the forkserver's child, not this process's
+        parent = os.getpid() if _CONTEXT.get_start_method() == "spawn" else None
         self.process = _CONTEXT.Process(target=_worker_main,
-                                        args=(child, function, initializer, os.getpid()),
+                                        args=(child, function, initializer, parent),
                                         daemon=True)
         self.process.start()
         child.close()
         self.job = None
         self.deadline = None  # set when the worker reports the job started
+        self.ready = False
 
     def give(self, job):
         self.job = job
@@ -102,6 +155,7 @@ class LocalPool:
         queue = list(jobs)
         pool = [_Worker(self.function, self.initializer)
                 for _ in range(min(self.workers, len(queue)))]
+        any_ready, died_starting = False, 0
         try:
             for worker in pool:
                 if queue:
@@ -116,26 +170,35 @@ class LocalPool:
                     if worker.job is None:
                         continue
                     job = worker.job
+                    died = worker.process.sentinel in ready
                     if worker.conn in ready:
                         try:
                             kind, result = worker.conn.recv()
                         except (EOFError, OSError):
                             kind, result = "lost", None
+                        if kind == "ready":
+                            worker.ready = any_ready = True
+                            continue
                         if kind == "started":
                             if self.job_timeout is not None:
                                 worker.deadline = time.monotonic() + self.job_timeout
                             continue
-                        if kind == "done":
+                        died = kind != "done"
+                        if not died:
                             worker.job = None
                             on_result(job, result)
-                        else:
-                            pool[i] = self._replace(worker, kill=True)
-                            on_lost(job, f"the worker process died (exit code "
-                                         f"{worker.process.exitcode})", "failed")
-                    elif worker.process.sentinel in ready:
+                    if died:
+                        worker.process.join(timeout=5)
+                        died_starting += not worker.ready
+                        if not any_ready and died_starting >= len(pool):
+                            raise missing_guard_error(
+                                f"Every worker process died while starting (exit code "
+                                f"{worker.process.exitcode}), before running a job")
                         pool[i] = self._replace(worker, kill=True)
                         on_lost(job, f"the worker process died (exit code "
                                      f"{worker.process.exitcode})", "failed")
+                    elif worker.job is None:
+                        pass  # its job just finished
                     elif worker.deadline is not None and time.monotonic() >= worker.deadline:
                         pool[i] = self._replace(worker, kill=True)
                         on_lost(job, f"stopped after {self.job_timeout:g} s (--job-timeout)",

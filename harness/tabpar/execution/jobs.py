@@ -3,6 +3,7 @@
 boundaries; its result is the row the store records plus the holdout predictions."""
 from __future__ import annotations
 
+import contextlib
 import time
 from datetime import datetime, timezone
 from functools import lru_cache
@@ -13,6 +14,7 @@ from joblib import parallel_config
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import release_freed_memory
 from tabpar.execution.cache import PreparedTask, load_arrays
+from tabpar.execution.estimates import predict_seconds
 from tabpar.execution.provenance import preparation_code_digest
 from tabpar.models.predict import predict
 from tabpar.models.zoo import MODELS, build_model
@@ -69,10 +71,13 @@ def _fit_and_score(job: dict) -> dict:
         X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
         y_fit = np.log1p(y_train) if job["log_target"] else y_train
         model = build_model(job["model"], task_type, job["seed"], job["threads"])
+        # the naive floor (a mean or class shares) runs no thread pool: finding the pools
+        # (and importing the ensembles' library to do so) would cost more than its fit
+        limit = (contextlib.nullcontext() if job["model"] == "naive"
+                 else _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]))
         # threads, not loky processes: a worker is a daemon process, where joblib's default
         # backend silently runs a forest's n_jobs=2 with 1 while the row records 2
-        with _thread_pools(MODELS[job["model"]].library).limit(limits=job["threads"]), \
-                parallel_config(backend="threading"):
+        with limit, parallel_config(backend="threading"):
             t0 = time.perf_counter()
             model.fit(X_train, y_fit)
             t1 = time.perf_counter()
@@ -109,9 +114,11 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
                              "log_target": t.log_target, "fingerprint": p.fingerprint,
                              "procedure": p.procedure, "threads": threads,
                              "code": preparation_code_digest(),
-                             "folder": str(p.folder),
-                             "cost": MODELS[model].cost(t.type) * p.n_train
-                             * len(p.feature_names) / 1e6})
+                             "folder": str(p.folder), "n_train": p.n_train,
+                             "n_features": len(p.feature_names),
+                             # predicted seconds on the references' machine: longest first
+                             "cost": predict_seconds(model, t.type, p.n_train,
+                                                     len(p.feature_names), threads, "job")})
     return jobs
 
 

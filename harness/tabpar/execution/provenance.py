@@ -32,6 +32,12 @@ def _providers() -> dict:
 def import_package_version(import_name: str) -> str | None:
     """Version of the installed distribution that provides ``import_name``, read from package
     metadata (so the library itself is not imported); None when it is not installed."""
+    recorded = RECORDED_LIBRARIES.get(import_name)
+    if recorded is not None:
+        try:  # the usual distribution: one lookup instead of a scan of every installed one
+            return version(recorded)
+        except PackageNotFoundError:
+            pass
     for dist in _providers().get(import_name, []):
         try:
             return version(dist)

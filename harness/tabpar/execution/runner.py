@@ -4,7 +4,9 @@ the append-only results store.
 Each task is loaded, split and prepared once, in the parent process, and its arrays are written
 to the on-disk cache; worker processes memory-map them, so no job repeats that work and no large
 array crosses a pipe. Jobs run in ``spawn``-started worker processes, each model limited to
-``cores // workers`` threads so the machine is never oversubscribed.
+``cores // workers`` threads so the machine is never oversubscribed; a single job, one worker,
+or a script whose workers would re-run it (no ``__main__`` guard) runs them in this process with
+every core. Jobs start longest first by predicted time (``estimates``).
 """
 from __future__ import annotations
 
@@ -23,7 +25,13 @@ from tabpar.common.text import html_table
 from tabpar.data.suite_values import check_seconds, check_seed_count
 from tabpar.data.suites import Suite, load_suite
 from tabpar.execution.cache import PreparedTask, prepare_task
-from tabpar.execution.executors import DaskPool, LocalPool, connect_check
+from tabpar.execution.executors import (
+    DaskPool,
+    LocalPool,
+    connect_check,
+    missing_guard_error,
+    unguarded_main_call,
+)
 from tabpar.execution.jobs import (
     execute_job,
     in_memory,
@@ -135,7 +143,9 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         The results folder (default ``runs/SUITE-DATE-TIME``); a rerun with the same folder
         skips the jobs already finished.
     workers : int, optional
-        Local worker processes (default: one per core); 1 runs in this process.
+        Local worker processes (default: one per core), never more than there are jobs; 1,
+        a single job, or a call from a script's top level outside
+        ``if __name__ == "__main__":`` runs the jobs in this process.
     job_timeout : float, optional
         Seconds after which a local job is stopped and recorded as timed out.
     procedure : Procedure, optional
@@ -200,9 +210,12 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
         todo = still_to_run(jobs, store.rows())
         todo.sort(key=lambda j: -j["cost"])  # longest first balances the workers
         reused = len(jobs) - len(todo)
-        if executor == "local" and threads_per_model is None and 0 < len(todo) < workers:
-            # fewer jobs than workers: give each job the cores the idle workers would have had
-            threads = max(1, cores // len(todo))
+        in_process = _in_process(todo, workers, job_timeout, executor)
+        if executor == "local" and threads_per_model is None and todo and (
+                in_process or len(todo) < workers):
+            # jobs one after another, or fewer jobs than workers: give each job the cores the
+            # idle workers would have had
+            threads = cores if in_process else max(1, cores // len(todo))
             for job in todo:
                 job["threads"] = threads
         if todo or meta != old_meta:
@@ -212,9 +225,9 @@ def run_suite(suite: str | Path | Suite = "quick", tasks=None, models=None, seed
             meta["executor"] = executor if executor == "local" else f"dask {scheduler}"
             store.write_meta(meta)
         versions = meta.get("versions")
-        bar = Progress(len(todo), progress)
+        bar = Progress(len(todo), progress, jobs=todo, workers=1 if in_process else workers)
         interrupted = _execute(todo, workers, store, versions, prepared, bar, job_timeout,
-                               executor, scheduler)
+                               executor, scheduler, in_process)
         bar.close()
     finally:
         store.close()
@@ -236,8 +249,21 @@ def _record(result: dict, store: ResultsStore, versions: dict, by_name: dict,
     store.append(row)
 
 
+def _in_process(todo, workers, job_timeout, executor) -> bool:
+    """Whether the jobs run in this process: one job or one worker (no process is worth
+    starting), or a script without a ``__main__`` guard (a worker would run it again)."""
+    if executor != "local":
+        return False
+    unguarded = unguarded_main_call()
+    if unguarded and job_timeout is not None:
+        raise missing_guard_error("A per-job time limit (--job-timeout) needs worker "
+                                  "processes, and each would run the calling script again")
+    return job_timeout is None and (min(workers, len(todo)) <= 1 or unguarded)
+
+
 def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
-             executor: str = "local", scheduler: str | None = None) -> bool:
+             executor: str = "local", scheduler: str | None = None,
+             in_process: bool = False) -> bool:
     """Run the jobs, recording each as it finishes; True when interrupted (Ctrl-C/SIGTERM)."""
     by_name = {p.task.name: p for p in prepared}
     # held in memory (n_holdout integers per task), so a cache entry removed during the run
@@ -250,7 +276,7 @@ def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
 
     def on_result(job, result):
         _record(result, store, versions, by_name, row_ids)
-        bar.step(f"{job['task']}/{job['model']}")
+        bar.step(f"{job['task']}/{job['model']}", job, result["row"].get("fit_seconds"))
 
     def on_lost(job, reason, status):
         on_result(job, lost_row(job, reason, status))
@@ -260,8 +286,8 @@ def _execute(todo, workers, store, versions, prepared, bar, job_timeout=None,
         if executor == "dask":
             DaskPool(execute_job, scheduler, payload=in_memory,
                      payload_key=lambda job: job["folder"]).run(todo, on_result, on_lost)
-        elif workers == 1 and job_timeout is None:
-            for job in todo:  # in this process: no start-up cost, easy to debug
+        elif in_process:  # no start-up cost (a worker imports the libraries again), easy to debug
+            for job in todo:
                 on_result(job, execute_job(job))
         else:
             warm = functools.partial(warm_imports, sorted({job["model"] for job in todo}))

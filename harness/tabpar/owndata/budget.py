@@ -1,8 +1,9 @@
 """The model zoo within a time budget: which models run, in what order, and what each will cost.
 
-Models run cheapest first (``MODELS[m].cost``); a model whose estimated time does not fit in
-what is left of the budget is skipped, and so is every costlier one after it. The naive floor
-and one default ensemble always run, as the placement needs them.
+Models run cheapest first (``MODELS[m].cost``); a model whose predicted time
+(``tabpar.execution.estimates``: from the references' recorded fits, scaled to this machine)
+does not fit in what is left of the budget is skipped, and so is every costlier one after it.
+The naive floor and one default ensemble always run, as the placement needs them.
 """
 from __future__ import annotations
 
@@ -12,13 +13,19 @@ import time
 import numpy as np
 
 from tabpar.common.errors import UserError
+from tabpar.common.system import available_cores
 from tabpar.data.suites import Suite
 from tabpar.evaluation.stats import N_BOOTSTRAP
+from tabpar.execution.estimates import predict_seconds
 from tabpar.execution.runner import run_suite
 from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS, check_models
 
 # the zoo also predicts the training rows; a diagnostic fit only predicts the holdout
 TRAIN_PREDICT_FACTOR = 1.5
+# a fit predicted shorter than this says more about fixed costs than about the machine's speed
+# (a LightGBM fit of a few thousand rows is mostly start-up: scaling the forests by it
+# overestimated them up to 40-fold)
+LEARN_FROM_SECONDS = 0.5
 
 
 def zoo_order(models=None, task_type: str = "regression") -> list[str]:
@@ -72,6 +79,10 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
             executor="local", scheduler=None):
     """Run ``order`` one model at a time; stop starting models the budget cannot hold.
 
+    A model's time is predicted from the published references' recorded fits of that model
+    (``tabpar.execution.estimates``: training rows, features, kind of task, threads), scaled
+    to this machine by the diagnostics' LightGBM fit and then by every model already run.
+
     Parameters
     ----------
     suite : Suite
@@ -89,9 +100,8 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
     started : float
         ``time.monotonic()`` when the budget started.
     rate : float or None
-        Seconds per unit of ``MODELS[m].cost`` per round of seeds, first from the
-        diagnostics' LightGBM fit (``seconds_per_cost``), then from the most expensive model
-        run so far.
+        ``seconds_per_cost`` of the diagnostics' LightGBM fit (None: no fit to go by; the
+        machine is then first assumed as fast as the references').
     say : callable
         Takes one progress message.
     executor, scheduler : str
@@ -104,14 +114,30 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
         (``{model, seed, status, error}``), and a note when the zoo ran past the budget.
     """
     rounds = math.ceil(seeds / workers)
+    threads = max(1, available_cores() // max(1, min(workers, seeds)))
     kind = suite.tasks[0].type
     ran, skipped, failures = [], [], []
     have_ensemble, stopped = False, False
+    sizes = None  # (training rows, features) once the first model has prepared them
+    # this machine's speed against the references' (actual / predicted seconds), learnt only
+    # from fits long enough not to be swamped by fixed costs, and the fixed cost of one run of
+    # a model (bookkeeping: cached arrays, predictions file, results line), from the short ones
+    ratios, overhead = [], 0.0
+
+    def predicted(model, target="job"):
+        return predict_seconds(model, kind, *sizes, threads=threads, target=target)
+
     for model in order:
         required = model == "naive" or (model in DEFAULT_ENSEMBLES and not have_ensemble)
-        if budget is not None and not required and rate is not None:
+        if budget is not None and not required and sizes is not None:
+            if rate is not None and predicted("lgbm", "fit") >= LEARN_FROM_SECONDS:
+                # the diagnostics' full-size LightGBM fit, used once
+                lgbm_fit = rate * MODELS["lgbm"].cost(kind) / TRAIN_PREDICT_FACTOR
+                ratios.append(lgbm_fit / predicted("lgbm", "fit"))
+                rate = None
+            scale = float(np.median(ratios)) if ratios else 1.0
             left = budget - (time.monotonic() - started)
-            estimate = rate * MODELS[model].cost(kind) * rounds
+            estimate = overhead + scale * predicted(model) * rounds
             # once one model does not fit, no costlier one is started either
             if stopped or estimate > left:
                 stopped = True
@@ -127,18 +153,22 @@ def run_zoo(suite: Suite, order, seeds, out_run, workers, budget, started, rate,
             raise KeyboardInterrupt
         failures += [{k: r.get(k) for k in ("model", "seed", "status", "error")}
                      for r in result.failures]
-        ok = any(m == model for m in next(iter(result.tasks.values()))["models"])
+        summary = next(iter(result.tasks.values()))
+        sizes = sizes or (summary["n_train"], summary["n_features"])
+        ok = model in summary["models"]
         say(f"model {model}: {'ok' if ok else 'FAILED'} ({seconds:.1f} s)")
         if ok:
             ran.append(model)
             have_ensemble = have_ensemble or model in DEFAULT_ENSEMBLES
-        if MODELS[model].cost(kind) >= MODELS["linear"].cost(kind):
-            rate = seconds / (MODELS[model].cost(kind) * rounds)
+            if predicted(model) * rounds >= LEARN_FROM_SECONDS:
+                ratios.append(max(seconds - overhead, 0.0) / (predicted(model) * rounds))
+            else:  # mostly bookkeeping: the latest such run is the fixed cost to expect
+                overhead = seconds
     overrun = None
     if budget is not None and time.monotonic() - started > budget:
         overrun = ("the model zoo ran past its share of the budget: the naive floor and one "
-                   "default ensemble always run, and model times are estimated from the ones "
-                   "already run scaled by the zoo's rough cost figures")
+                   "default ensemble always run, and model times are predicted from the "
+                   "references' recorded fits, scaled by the models already run")
     return ran, skipped, failures, overrun
 
 

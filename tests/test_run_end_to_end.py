@@ -138,7 +138,9 @@ def test_stored_scores_match_sklearn_on_stored_predictions(quick_run, rows, suit
         expected_rows, y = holdout[row["task"]]
         np.testing.assert_array_equal(row_id, expected_rows)
         reference = SKLEARN_METRIC[row["metric"]](y, prediction)
-        assert row["score"] == pytest.approx(reference, rel=1e-9, abs=1e-12), row["task"]
+        # the score is computed from full-precision predictions, the file keeps them as float32
+        # (about 7 significant digits), so scikit-learn on the file agrees to about 1e-6
+        assert row["score"] == pytest.approx(reference, rel=1e-5, abs=1e-9), row["task"]
 
 
 def test_rerun_with_same_out_reuses_every_job(quick_run, quick_run_copy):

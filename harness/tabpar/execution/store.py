@@ -196,14 +196,22 @@ class ResultsStore:
         return str(path.relative_to(self.folder))
 
 
+# predictions are stored as float32: half the size of float64 (the published references ship in
+# the wheel), and its 7 significant digits are far finer than any holdout's noise; scores are
+# computed from the full-precision predictions before they are stored
+PREDICTION_DTYPE = np.float32
+
+
 def predictions_frame(row_id: np.ndarray, prediction: np.ndarray) -> pd.DataFrame:
+    """The stored form of a job's holdout predictions: row_id, then ``prediction`` (one value
+    per row) or ``proba_0 … proba_{k-1}`` (multiclass), as ``PREDICTION_DTYPE``."""
     prediction = np.asarray(prediction)
     data = {"row_id": np.asarray(row_id, dtype=np.int64)}
     if prediction.ndim == 1:
-        data["prediction"] = prediction.astype(np.float64)
+        data["prediction"] = prediction.astype(PREDICTION_DTYPE)
     else:
         for k in range(prediction.shape[1]):
-            data[f"proba_{k}"] = prediction[:, k].astype(np.float64)
+            data[f"proba_{k}"] = prediction[:, k].astype(PREDICTION_DTYPE)
     return pd.DataFrame(data)
 
 
@@ -223,11 +231,12 @@ def read_predictions(path: Path, root: Path | None = None) -> tuple[np.ndarray, 
         raise UserError(f"The predictions file {path} lacks row_id or prediction columns; "
                         f"{fix}.")
     row_id = frame["row_id"].to_numpy()
+    # computed on in float64, whatever precision the file holds
     if "prediction" in frame:
-        return row_id, frame["prediction"].to_numpy()
+        return row_id, frame["prediction"].to_numpy(dtype=np.float64)
     cols = sorted((c for c in frame.columns if c.startswith("proba_")),
                   key=lambda c: int(c.split("_")[1]))
-    return row_id, frame[cols].to_numpy()
+    return row_id, frame[cols].to_numpy(dtype=np.float64)
 
 
 def inside_folder(folder: str | Path, path: str | Path) -> Path:

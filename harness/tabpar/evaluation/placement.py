@@ -22,6 +22,7 @@ from tabpar.common.text import format_number as fmt
 from tabpar.common.text import html_table
 from tabpar.data.sources import read_table
 from tabpar.data.suites import Task, load_suite
+from tabpar.evaluation.probes import findings_lines, probe_predictions
 from tabpar.evaluation.reference import Reference
 from tabpar.evaluation.stats import (
     bootstrap_scores,
@@ -69,6 +70,7 @@ class Placement:
     extra: dict = field(default_factory=dict)  # added by other answers (e.g. a leaderboard)
     extra_lines: list = field(default_factory=list, repr=False)  # their text, for __str__
     extra_shown: set = field(default_factory=set, repr=False)  # keys extra_lines already show
+    findings: list = field(default_factory=list)  # probes on the user's predictions (Finding)
 
     def attach(self, numbers: dict, lines: list[str]) -> None:
         """Add another answer's numbers (kept in ``extra``, merged by ``to_dict``) and the lines
@@ -82,6 +84,7 @@ class Placement:
         d.pop("extra_lines")
         d.pop("extra_shown")
         d.update(d.pop("extra"))
+        d["findings"] = [f.to_dict() for f in self.findings]
         return d
 
     def __str__(self) -> str:
@@ -101,6 +104,7 @@ class Placement:
             f"{self.seed_spread:.3g}",
             f"  task difficulty percentile {diff} among the reference's tasks (higher = harder)",
         ]
+        lines[2:2] = findings_lines(self.findings)  # under the verdict, most decisive first
         if self.gain_share is None and self.gain_share_note:
             lines.append(f"  gain share: {self.gain_share_note}")
         lines.extend(self.extra_lines)
@@ -272,6 +276,8 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
     difficulty_pct = share_below(tref.difficulty, difficulties.values())
     message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance)
+    findings = (probe_predictions(definition, metric, y, user, row_id, ref_preds, tref,
+                                  predictions) if paired else [])
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
         percentile=percentile_of(metric, score, runs),
@@ -280,7 +286,7 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         gain_share=gain_share, gain_share_note=gain_share_note, noise=float(noise), seed_spread=tref.seed_spread,
         paired=paired, verdict=verdict, difficulty_percentile=difficulty_pct, message=message,
         tolerance=tolerance, reference=str(ref.folder), model_means=dict(tref.means),
-        reference_scores={m: list(v) for m, v in tref.scores.items()})
+        reference_scores={m: list(v) for m, v in tref.scores.items()}, findings=findings)
 
 
 def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance) -> str:

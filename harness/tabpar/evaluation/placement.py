@@ -277,7 +277,7 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     difficulty_pct = share_below(tref.difficulty, difficulties.values())
     message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance)
     findings = (probe_predictions(definition, metric, y, user, row_id, ref_preds, tref,
-                                  predictions) if paired else [])
+                                  predictions, ref) if paired else [])
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
         percentile=percentile_of(metric, score, runs),

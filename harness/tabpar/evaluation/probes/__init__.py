@@ -34,6 +34,7 @@ from tabpar.evaluation.probes import (
 )
 from tabpar.evaluation.probes.base import Candidate, Finding, PairedTest, ProbeContext
 from tabpar.evaluation.stats import N_BOOTSTRAP, bootstrap_scores, half_width
+from tabpar.execution.store import align_to
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
 PROPOSERS = (transform.propose, alignment.propose, scale.propose, classification.propose)
@@ -91,7 +92,8 @@ def run_probes(ctx: ProbeContext, n_boot: int = N_BOOTSTRAP, seed: int = 0) -> l
                 par_gains = metric.gain(cboot[:, k], boot[:, 1])
                 k += 1
                 par_score = float(metric(ctx.y, candidate.par_corrected))
-                test.par_gain = float(metric.gain(par_score, metric(ctx.y, par)))
+                test.par_gain = max(float(metric.gain(par_score, metric(ctx.y, par))),
+                                    candidate.reference_gain)
                 test.excess_width = half_width(gains - par_gains)
             finding = candidate.judge(ctx, candidate, test)
             if finding is not None:
@@ -129,7 +131,7 @@ def file_order(path, row_id) -> np.ndarray:
 
 
 def probe_predictions(task, metric, y, given, row_id, reference: dict, task_reference,
-                      path=None) -> list[Finding]:
+                      path=None, ref=None) -> list[Finding]:
     """Run the probes on predictions placed on ``task`` (what ``place_task`` calls).
 
     Parameters
@@ -146,6 +148,9 @@ def probe_predictions(task, metric, y, given, row_id, reference: dict, task_refe
         The reference's numbers for the task (par, best, per-run scores).
     path : path, optional
         The predictions file (its row order feeds the alignment probe).
+    ref : Reference, optional
+        The reference itself, whose default ensembles' predictions (lowest seed each) set the
+        spread between reasonable models; without it, best and par stand for them.
 
     Returns
     -------
@@ -166,8 +171,22 @@ def probe_predictions(task, metric, y, given, row_id, reference: dict, task_refe
         best_model=tref.best_model, par_model=tref.par_model,
         ensemble_means={m: v for m, v in tref.means.items() if m in DEFAULT_ENSEMBLES},
         reference_scores=[s for m in tref.scores for s in tref.scores[m]],
-        file_order=None if path is None else file_order(path, row_id), features=features)
+        file_order=None if path is None else file_order(path, row_id), features=features,
+        ensembles=_ensembles(ref, task.name, tref, row_id, reference))
     return run_probes(ctx)
+
+
+def _ensembles(ref, task_name, tref, row_id, reference) -> dict:
+    """Default ensemble → its predictions aligned to ``row_id`` (lowest seed)."""
+    if ref is None:
+        return {tref.best_model: reference["best"], tref.par_model: reference["par"]}
+    out = {}
+    for model in DEFAULT_ENSEMBLES:
+        if model in tref.means:
+            aligned = align_to(*ref.predictions(task_name, model), np.asarray(row_id))
+            if aligned is not None:
+                out[model] = aligned
+    return out
 
 
 def findings_lines(findings: list, indent: str = "  ") -> list[str]:

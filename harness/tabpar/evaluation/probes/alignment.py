@@ -1,7 +1,8 @@
 """Row alignment: the given predictions matched to other rows than their row_id says.
 
 Each candidate reorders the prediction values as they stand in the user's file: shifted by a
-few rows either way (an off-by-one when the row_id column was attached), assigned to the rows
+few rows either way (an off-by-one when the row_id column was attached; "shifted down by 1 row"
+= each prediction sits one row after the row it was made for), assigned to the rows
 in row_id order (the order of the exported holdout and of the source file, whose positions the
 row ids are), and in the order of the time holdout's date (the holdout sorted by date before
 predicting). A finding when the best reordering improves the score beyond the paired noise and

@@ -56,7 +56,9 @@ class ProbeContext:
     """What the probes read: the holdout truth and every prediction set on the same rows.
 
     ``given`` and the ``reference`` sets (role → predictions; roles ``best``, ``par`` and
-    ``naive``) are aligned to ``row_id``. ``file_order`` holds, for each row of the user's file
+    ``naive``) are aligned to ``row_id``; ``ensembles`` holds every default ensemble's
+    predictions (model → its lowest seed in the reference), the spread a probe compares the
+    given predictions against (what separates reasonable models is no mistake). ``file_order`` holds, for each row of the user's file
     in the file's order, its position in ``row_id`` (None when unknown). ``features`` returns the
     holdout rows' feature columns aligned to ``row_id`` (None when unavailable); it is only
     called by the probes that need it.
@@ -75,6 +77,7 @@ class ProbeContext:
     ensemble_means: dict  # default ensemble → mean score over seeds
     reference_scores: list  # every reference run's score
     file_order: np.ndarray | None = None
+    ensembles: dict = field(default_factory=dict)
     features: Callable[[], pd.DataFrame | None] = field(default=lambda: None, repr=False)
     # filled by the runner from its bootstrap: the given predictions against par and best
     score: float = float("nan")
@@ -109,8 +112,9 @@ class Candidate:
     info: dict = field(default_factory=dict)
     # par's predictions given the same kind of correction (fitted to par's own rows), when the
     # correction could improve any predictions a little (a fitted factor): the test then asks
-    # how much more it helps the given predictions than it helps par's
+    # how much more it helps the given predictions than it helps the reference's
     par_corrected: np.ndarray | None = None
+    reference_gain: float = 0.0  # the most any default ensemble gains from its own correction
 
 
 @dataclass
@@ -123,7 +127,9 @@ class PairedTest:
     gain_width: float  # 95% half-width of that paired difference
     vs_par: float  # gain over par's score
     vs_par_width: float
-    par_gain: float = 0.0  # what the same correction gains par (0 without ``par_corrected``)
+    # what the same correction gains the reference: the most any default ensemble gains (0
+    # without ``par_corrected``)
+    par_gain: float = 0.0
     excess_width: float = float("nan")  # 95% half-width of gain − par_gain (paired)
 
     @property

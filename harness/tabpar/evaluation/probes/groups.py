@@ -4,11 +4,16 @@ by each feature column.
 A mistake confined to one column (category codes learned separately on the holdout rows, a
 date parsed with day and month swapped) makes the losses concentrate in some of that column's
 groups: levels of a category column, quantile bins of a numeric or date column, and for a date
-also its month and day of month. For each grouping the share of the per-row differences'
+also its month, its day of month and whether the day is 1 to 12 (the days a day-first reading
+swaps with the month). For each grouping the share of the per-row differences'
 variance it explains is measured bias-corrected (epsilon squared, so many small groups do not
-explain by chance), once for the user against par and once for two reference models (best
-against par): a finding when the best-explaining column's excess over the reference clears the
-paired bootstrap band, and the score is below par beyond the noise.
+explain by chance) on the ranks of the per-row differences (so a few huge squared errors do
+not decide it), once for the user against par and once for each other default ensemble of
+the reference against par (taking the largest: what separates two reasonable models is no
+mistake): a finding when the best-explaining column's excess over the reference clears the
+paired bootstrap band widened for the number of groupings tried (Bonferroni: the excess over its
+bootstrap standard error beyond the normal quantile of 1 − 0.025 / groupings, since the column
+is the best of many), and the score is below par beyond the noise.
 
 Per-row losses add up to the metric: squared errors (of ``log1p`` values for RMSLE), absolute
 errors, ``-log p`` of the true class, 0/1 errors, and for ROC AUC each row's share of the
@@ -18,6 +23,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from scipy import stats
 
 from tabpar.common.text import format_number as fmt
 from tabpar.evaluation.probes.base import Finding
@@ -100,6 +106,9 @@ def groupings(features: pd.DataFrame) -> dict:
         if pd.api.types.is_datetime64_any_dtype(values):
             out[f"{column} (month)"] = _codes(values.dt.month.astype("Int64").astype(str))
             out[f"{column} (day of month)"] = _codes(values.dt.day.astype("Int64").astype(str))
+            # the days a day-first reading swaps with the month: 1 to 12
+            out[f"{column} (day 1-12 or later)"] = _codes(
+                (values.dt.day <= 12).astype(str).where(values.notna()))
     return {name: codes for name, codes in out.items() if codes.max() > 0}
 
 
@@ -139,32 +148,63 @@ def examine(ctx) -> list[Finding]:
         return []
     name = ctx.metric.name
     par = ctx.reference["par"]
-    d_user = row_losses(name, ctx.y, ctx.given) - row_losses(name, ctx.y, par)
-    d_ref = row_losses(name, ctx.y, ctx.reference["best"]) - row_losses(name, ctx.y, par)
+    # ranks of the per-row differences: a few rows with huge squared errors would otherwise
+    # decide which grouping "explains" them
+    d_user = _ranks(row_losses(name, ctx.y, ctx.given) - row_losses(name, ctx.y, par))
+    base = row_losses(name, ctx.y, par)
+    others = {m: p for m, p in ctx.ensembles.items() if m != ctx.par_model}
+    others = others or {ctx.best_model: ctx.reference["best"]}
+    d_refs = {m: _ranks(row_losses(name, ctx.y, p) - base) for m, p in others.items()}
     groups = groupings(features)
     if not groups:
         return []
-    excess = {g: explained(c, d_user) - explained(c, d_ref) for g, c in groups.items()}
+    excess, pair = {}, {}
+    for g, c in groups.items():
+        shares = {m: explained(c, d) for m, d in d_refs.items()}
+        pair[g] = max(shares, key=shares.get)
+        excess[g] = explained(c, d_user) - shares[pair[g]]
     column = max(excess, key=excess.get)
-    codes = groups[column]
+    codes, model = groups[column], pair[column]
+    d_ref = d_refs[model]
     # one bootstrap over rows of both explained shares, paired; the rows' codes stand in for y
     boot = bootstrap_scores(lambda c, d, w: explained(c, d, w), codes, [d_user, d_ref])
-    width = half_width(boot[:, 0] - boot[:, 1])
-    if not excess[column] - width > 0:
+    spread = boot[:, 0] - boot[:, 1]
+    width = half_width(spread)
+    se = float(np.std(spread[np.isfinite(spread)], ddof=1))
+    needed = float(stats.norm.ppf(1 - 0.025 / len(groups)))  # two-sided 95%, Bonferroni
+    z = excess[column] / se if se > 0 else float("inf")
+    if not z > needed:
         return []
     user_share, ref_share = explained(codes, d_user), explained(codes, d_ref)
     worst = _worst_group(features, column, codes, d_user)
     sentence = (f"Your predictions lose to par ({ctx.par_model}) mostly along '{column}': its "
-                f"groups explain {user_share:.0%} of the per-row loss difference, against "
-                f"{max(ref_share, 0):.0%} between two reference models ({ctx.best_model} and "
+                f"groups explain {user_share:.0%} of the (ranked) per-row loss differences, "
+                f"against {max(ref_share, 0):.0%} between two reference models ({model} and "
                 f"{ctx.par_model}); worst {worst} ({ctx.figures()}). Check how this column "
-                f"reaches your model: category codes learned separately on the holdout rows, "
-                f"or a date or number parsed differently from the training rows.")
+                f"reaches your model: {_suspects(features[column.split(' (')[0]])}.")
     return [Finding(PROBE, {"column": column, "explained": user_share,
-                            "explained_reference": ref_share, "excess": excess[column],
-                            "noise": width, "worst_group": worst, "score": ctx.score,
+                            "explained_reference": ref_share, "reference_model": model,
+                            "excess": excess[column],
+                            "noise": width, "z": z, "z_needed": needed,
+                            "groupings": len(groups), "worst_group": worst, "score": ctx.score,
                             "par": ctx.par}, sentence,
-                    strength=excess[column] / max(width, 1e-12))]
+                    strength=z / needed)]
+
+
+def _suspects(values: pd.Series) -> str:
+    """The usual mistakes for a column of this kind."""
+    if pd.api.types.is_datetime64_any_dtype(values):
+        return ("a date parsed differently from the training rows (day and month swapped by a "
+                "day-first reading?) or its calendar fields computed differently")
+    if pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values):
+        return "a number parsed, scaled or filled differently from the training rows"
+    return ("category codes learned separately on the holdout rows, or levels spelled "
+            "differently from the training rows")
+
+
+def _ranks(d) -> np.ndarray:
+    """Ranks scaled to 0..1 (ties share their mean rank)."""
+    return (stats.rankdata(d) - 1) / max(len(d) - 1, 1)
 
 
 def _worst_group(features, column, codes, d) -> str:
@@ -178,6 +218,9 @@ def _worst_group(features, column, codes, d) -> str:
         values = "month " + values.dt.month.astype(str)
     elif column.endswith("(day of month)"):
         values = "day " + values.dt.day.astype(str)
+    elif column.endswith("(day 1-12 or later)"):
+        values = np.where(values.dt.day <= 12, "days 1-12", "days 13-31")
+        values = pd.Series(values)
     if pd.api.types.is_numeric_dtype(values) and values.nunique() > 1:
         what = f"{fmt(values.min())} to {fmt(values.max())}"
     elif pd.api.types.is_datetime64_any_dtype(values) and column == base:

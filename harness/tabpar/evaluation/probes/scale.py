@@ -6,7 +6,8 @@ of log10 a, then refined), the offset in closed form for RMSE/R² (mean residual
 (median residual), else by a bounded search. Par's predictions get their own best factor and
 offset too (a time holdout's drift lets any model gain a little from one): a finding when the
 correction improves the given predictions by more than it improves par's, beyond the paired
-noise, and that excess closes most of the gap to par. A factor is read as a change of units
+noise, and by more than it improves any default ensemble of the reference (point figures),
+and that excess closes most of the gap to par. A factor is read as a change of units
 when its ratio to par's factor is near a power of ten.
 """
 from __future__ import annotations
@@ -74,8 +75,21 @@ def propose(ctx) -> list[Candidate]:
         return []
     fixed_par = par * par_factor if chosen[0] == "factor" else par + par_offset
     return [Candidate(PROBE, chosen[0], chosen[1], judge, par_corrected=fixed_par,
+                      reference_gain=_reference_gain(ctx, chosen[0]),
                       info={"factor": factor, "offset": offset, "par_factor": par_factor,
                             "par_offset": par_offset})]
+
+
+def _reference_gain(ctx, kind: str) -> float:
+    """The most any default ensemble of the reference gains from its own best factor (or
+    offset), in the metric's direction: tree ensembles under a time holdout's drift lean
+    alike, and that is no mistake of theirs."""
+    gains = [0.0]
+    for prediction in ctx.ensembles.values():
+        p = np.asarray(prediction, float)
+        fixed = p * best_factor(ctx, p) if kind == "factor" else p + best_offset(ctx, p)
+        gains.append(float(ctx.metric.gain(ctx.metric(ctx.y, fixed), ctx.metric(ctx.y, p))))
+    return max(gains)
 
 
 def unit_words(factor: float) -> tuple[bool, str]:

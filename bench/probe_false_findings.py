@@ -37,11 +37,56 @@ def without_run(reference, task, model, seed, root: Path) -> Path:
     return folder
 
 
+def probe_seconds_at(n: int) -> tuple[float, list]:
+    """Seconds ``run_probes`` takes on ``n`` holdout rows of a SYNTHETIC regression stand-in
+    (RMSE; 10 numeric columns, 3 category columns, 1 date column) whose given predictions are
+    below par, so every probe runs its full path."""
+    from types import SimpleNamespace
+
+    import numpy as np
+    import pandas as pd
+    from tabpar.common.metrics import METRICS
+    from tabpar.evaluation.probes import ProbeContext, run_probes
+
+    rng = np.random.default_rng(0)
+    features = pd.DataFrame({f"x{i}": rng.normal(size=n) for i in range(10)})
+    for i in range(3):
+        features[f"c{i}"] = rng.choice([f"level{j}" for j in range(30)], n)
+    features["when"] = pd.Timestamp("2020-01-01") + pd.to_timedelta(rng.integers(0, 900, n),
+                                                                    unit="D")
+    y = features["x0"].to_numpy() * 3 + rng.normal(size=n)
+    models = {m: y + rng.normal(scale=1.0 + 0.05 * k, size=n)
+              for k, m in enumerate(["rf", "et", "hgb", "xgb", "lgbm"])}
+    metric = METRICS["rmse"]
+    means = {m: metric(y, p) for m, p in models.items()}
+    par_model = sorted(means, key=means.get)[2]
+    best_model = min(means, key=means.get)
+    bad = (features["c0"] == "level3").to_numpy()  # a mistake confined to one level
+    given = models[par_model] + np.where(bad, rng.normal(scale=6.0, size=n), 0.0)
+    ctx = ProbeContext(
+        task=SimpleNamespace(type="regression", log_target=False, derive_target=None,
+                             positive=None, holdout=SimpleNamespace(policy="random")),
+        metric=metric, y=y, given=given, row_id=np.arange(n),
+        reference={"par": models[par_model], "best": models[best_model]},
+        par=means[par_model], best=means[best_model], best_model=best_model,
+        par_model=par_model, ensemble_means=means, reference_scores=list(means.values()),
+        file_order=np.arange(n), ensembles=models, features=lambda: features)
+    start = time.perf_counter()
+    found = run_probes(ctx)
+    return time.perf_counter() - start, found
+
+
 def main():
     parser = argparse.ArgumentParser()
     parser.add_argument("--reference", default="quick")
     parser.add_argument("--tasks", default=None, help="comma-separated tasks (default: all)")
+    parser.add_argument("--speed-rows", type=int, default=100_000,
+                        help="also time the probes on this many synthetic rows (0: skip)")
     args = parser.parse_args()
+    if args.speed_rows:
+        seconds, found = probe_seconds_at(args.speed_rows)
+        print(f"probes on {args.speed_rows:,} synthetic holdout rows: {seconds:.1f} s "
+              f"(findings: {', '.join(f.probe for f in found) or 'none'})")
     from scipy import stats
     from tabpar.data.suites import load_suite
     from tabpar.evaluation import placement as placement_module

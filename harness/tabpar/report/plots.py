@@ -112,21 +112,23 @@ def placement_plot(placement, ax=None, leaderboard=None, leaderboard_ax=None):
     ax.grid(axis="x", alpha=0.3)
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
               frameon=False)
-    findings_note(ax, placement.findings)
+    findings_note(ax, placement.findings, right=placement.lower_is_better)
     return fig
 
 
-def findings_note(ax, findings) -> None:
-    """The probes' findings on the user's predictions as a small note in the panel's lower
-    right corner, most decisive first (nothing when there are none; the text answer has the
-    sentences and figures)."""
+def findings_note(ax, findings, right: bool = True) -> None:
+    """The probes' findings on the user's predictions as a small note in an upper corner of
+    the panel (the right one when ``right``: the worse end, where the top rows' best models are
+    not), most decisive first; nothing when there are none (the text answer has the sentences
+    and figures)."""
     if not findings:
         return
     shown = [f"• {f.probe}" for f in findings[:3]]
     if len(findings) > 3:
         shown.append(f"  and {len(findings) - 3} more")
-    ax.text(0.99, 0.02, "\n".join(["probes on your predictions:"] + shown),
-            transform=ax.transAxes, ha="right", va="bottom", fontsize=7.5, zorder=6,
+    ax.text(0.99 if right else 0.01, 0.98, "\n".join(["probes on your predictions:"] + shown),
+            transform=ax.transAxes, ha="right" if right else "left", va="top", fontsize=7.5,
+            zorder=6,
             bbox={"boxstyle": "round,pad=0.4", "facecolor": "#FFF4E0",
                   "edgecolor": "#E69F00"})
 

@@ -137,7 +137,7 @@ def explained(codes, d, weights=None) -> float:
     return float((between - (k - 1) * within) / total)
 
 
-def examine(ctx) -> list[Finding]:
+def examine(ctx, n_boot: int = 500) -> list[Finding]:
     if not ctx.below_par or ctx.metric.name not in ("rmse", "rmsle", "mae", "r2", "log_loss",
                                                     "accuracy", "roc_auc"):
         return []
@@ -167,7 +167,8 @@ def examine(ctx) -> list[Finding]:
     codes, model = groups[column], pair[column]
     d_ref = d_refs[model]
     # one bootstrap over rows of both explained shares, paired; the rows' codes stand in for y
-    boot = bootstrap_scores(lambda c, d, w: explained(c, d, w), codes, [d_user, d_ref])
+    boot = bootstrap_scores(lambda c, d, w: explained(c, d, w), codes, [d_user, d_ref],
+                            n_boot=n_boot)
     spread = boot[:, 0] - boot[:, 1]
     width = half_width(spread)
     se = float(np.std(spread[np.isfinite(spread)], ddof=1))

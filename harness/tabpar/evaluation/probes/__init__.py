@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from tabpar.common.errors import UserError
 from tabpar.data.sources import read_table
 from tabpar.data.split import load_and_split
 from tabpar.evaluation.probes import (
@@ -185,10 +186,14 @@ def _ensembles(ref, task_name, tref, row_id, reference) -> dict:
     out = {}
     for model in DEFAULT_ENSEMBLES:
         if model in tref.means:
-            aligned = align_to(*ref.predictions(task_name, model), np.asarray(row_id))
+            try:
+                stored = ref.predictions(task_name, model)
+            except UserError:  # a results folder without this model's predictions
+                continue
+            aligned = align_to(*stored, np.asarray(row_id))
             if aligned is not None:
                 out[model] = aligned
-    return out
+    return out or {tref.best_model: reference["best"], tref.par_model: reference["par"]}
 
 
 def findings_lines(findings: list, indent: str = "  ") -> list[str]:

@@ -243,6 +243,24 @@ def test_category_codes_learned_on_the_holdout_are_below_baseline(files, tmp_pat
     assert result.score_verdict == "below-baseline"
     assert verdict_part(result.answer).startswith("More likely the pipeline")
     assert "category codes learned separately" in result.answer
+    # every category column coded apart spreads the losses over all of them: no single column
+    # explains them beyond the noise, so the probes name none
+    assert result.placement.findings == []
+
+
+def test_prices_in_thousands_are_named_in_both_reports(files, tmp_path):
+    path = _user_predictions(files, tmp_path, separate_codes=False)
+    frame = pd.read_csv(path)
+    frame["prediction"] /= 1000  # the mistake: the price in thousands of dollars
+    frame.to_csv(path, index=False)
+    result = calibrate(files["sacramento_codes"], "price", predictions=path, models=FAST,
+                       out=tmp_path / "thousands")
+    found = result.placement.findings
+    assert found and found[0].probe == "scale" and "1,000 times too small" in found[0].sentence
+    assert found[0].sentence in str(result)
+    assert found[0].sentence in (tmp_path / "thousands" / "report.md").read_text()
+    saved = json.loads((tmp_path / "thousands" / "report.json").read_text())
+    assert saved["findings"] == [f.to_dict() for f in found]
 
 
 def test_the_same_pipeline_done_right_is_not_below_baseline(files, tmp_path):
@@ -252,6 +270,7 @@ def test_the_same_pipeline_done_right_is_not_below_baseline(files, tmp_path):
     assert result.score_verdict in ("at-baseline", "above-baseline")
     assert not verdict_part(result.answer).startswith(("The pipeline",
                                                        "More likely the pipeline"))
+    assert result.placement.findings == [] and result.to_dict()["findings"] == []
 
 
 # --- budget, export, diagnostics apart ----------------------------------------------------

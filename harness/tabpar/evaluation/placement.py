@@ -23,6 +23,7 @@ from tabpar.common.text import html_table
 from tabpar.data.sources import read_table
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.predictions import read_predictions_file
+from tabpar.evaluation.probes import findings_lines, probe_predictions
 from tabpar.evaluation.reference import (
     Reference,
     published_names,
@@ -79,6 +80,7 @@ class Placement:
     extra: dict = field(default_factory=dict)  # added by other answers (e.g. a leaderboard)
     extra_lines: list = field(default_factory=list, repr=False)  # their text, for __str__
     extra_shown: set = field(default_factory=set, repr=False)  # keys extra_lines already show
+    findings: list = field(default_factory=list)  # probes on the user's predictions (Finding)
 
     def attach(self, numbers: dict, lines: list[str]) -> None:
         """Add another answer's numbers (kept in ``extra``, merged by ``to_dict``) and the lines
@@ -92,6 +94,7 @@ class Placement:
         d.pop("extra_lines")
         d.pop("extra_shown")
         d.update(d.pop("extra"))
+        d["findings"] = [f.to_dict() for f in self.findings]
         return d
 
     def __str__(self) -> str:
@@ -115,6 +118,7 @@ class Placement:
         ]
         why = f" ({self.reference_reason})" if self.reference_reason else ""
         lines.append(f"  placed on the {self.reference_label or self.reference}{why}")
+        lines[2:2] = findings_lines(self.findings)  # under the verdict, most decisive first
         if self.gain_share is None and self.gain_share_note:
             lines.append(f"  gain share: {self.gain_share_note}")
         lines.extend(self.extra_lines)
@@ -283,6 +287,8 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
     difficulty_pct = share_below(tref.difficulty, difficulties.values())
     message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance)
+    findings = (probe_predictions(definition, metric, y, user, row_id, ref_preds, tref,
+                                  predictions, ref) if paired else [])
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
         percentile=percentile_of(metric, score, runs),
@@ -293,7 +299,7 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         tolerance=tolerance, reference=str(ref.folder), reference_label=ref.label,
         units=definition.units if metric.in_target_units else "",
         model_means=dict(tref.means),
-        reference_scores={m: list(v) for m, v in tref.scores.items()})
+        reference_scores={m: list(v) for m, v in tref.scores.items()}, findings=findings)
 
 
 def failure_causes(metric_name: str) -> str:

@@ -15,6 +15,7 @@ from tabpar.common.files import atomic_write_text
 from tabpar.common.text import format_number as fmt
 from tabpar.data.suites import Task
 from tabpar.evaluation.placement import DEFAULT_TOLERANCE, Placement, failure_causes
+from tabpar.evaluation.probes import findings_lines
 from tabpar.execution.provenance import library_versions
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 from tabpar.owndata.difficulty import EASY_PERCENTILE, HARD_PERCENTILE
@@ -102,7 +103,7 @@ class Calibration:
             "diagnostics": [d.to_dict() for d in self.diagnostics], "answer": self.answer,
             "skipped": self.skipped, "failures": self.failures, "warnings": self.warnings,
             "budget_seconds": self.budget_seconds, "elapsed_seconds": self.elapsed_seconds,
-            "files": self.files,
+            "files": self.files, "findings": [f.to_dict() for f in p.findings],
         }, default=str)))
 
     @property
@@ -176,6 +177,7 @@ class Calibration:
                       f"{len(DEFAULT_ENSEMBLES)} default ensembles)" if self.provisional else ""),
                   f"  gain share {gain_share}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
                   f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
+                  *findings_lines(p.findings),
                   f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
                   f"best default takes), "
                   + (f"percentile {pct} among the {self.suite_tasks} tasks of the "
@@ -214,6 +216,10 @@ class Calibration:
                f"- **split**: {self.split}",
                f"- **inferred**: {inferred_text(self.inferred)}", "",
                "## Answer", "", self.answer, "",
+               *([f"## Probes on your predictions ({len(p.findings)} finding"
+                  f"{'s' if len(p.findings) > 1 else ''}, most decisive first)", ""]
+                 + [f"- **{f.probe}**: {f.sentence}" for f in p.findings] + [""]
+                 if p.findings else []),
                "## Baseline on your split", "",
                "| model | holdout | train | fit s |", "|---|---:|---:|---:|"]
         sign = 1 if p.lower_is_better else -1

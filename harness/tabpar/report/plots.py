@@ -135,6 +135,7 @@ def placement_plot(placement, ax=None, leaderboard=None, leaderboard_ax=None):
     ax.grid(axis="x", alpha=0.3)
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
               frameon=False)
+    findings_note(ax, placement.findings, right=placement.lower_is_better)
     return fig
 
 
@@ -154,6 +155,23 @@ def _placement_range(placement, models) -> tuple[float, float, bool]:
     lo, hi = min([lo] + near), max([hi] + near)
     pad = 0.06 * max(hi - lo, 1e-9)
     return lo - pad, hi + pad, floor_shown
+
+
+def findings_note(ax, findings, right: bool = True) -> None:
+    """The probes' findings on the user's predictions as a small note in an upper corner of
+    the panel (the right one when ``right``: the worse end, where the top rows' best models are
+    not), most decisive first; nothing when there are none (the text answer has the sentences
+    and figures)."""
+    if not findings:
+        return
+    shown = [f"• {f.probe}" for f in findings[:3]]
+    if len(findings) > 3:
+        shown.append(f"  and {len(findings) - 3} more")
+    ax.text(0.99 if right else 0.01, 0.98, "\n".join(["probes on your predictions:"] + shown),
+            transform=ax.transAxes, ha="right" if right else "left", va="top", fontsize=7.5,
+            zorder=6,
+            bbox={"boxstyle": "round,pad=0.4", "facecolor": "#FFF4E0",
+                  "edgecolor": "#E69F00"})
 
 
 def leaderboard_panel(ax, leaderboard, score: float) -> None:

@@ -1,8 +1,6 @@
-"""What ``calibrate`` found: the ``Calibration`` result, its text and JSON forms, and the answer.
+"""What ``calibrate`` found: the ``Calibration`` result and its text, markdown and JSON forms.
 
-The answer (``compose_answer``) says which explanation of a weak score the evidence supports,
-the pipeline or the data, from the placement, the dataset's difficulty among the published
-reference's tasks (``tabpar.owndata.difficulty``) and the diagnostics.
+The answer paragraph it carries comes from ``tabpar.owndata.explanation.compose_answer``.
 """
 from __future__ import annotations
 
@@ -14,11 +12,15 @@ from pathlib import Path
 from tabpar.common.files import atomic_write_text
 from tabpar.common.text import format_number as fmt
 from tabpar.data.suites import Task
-from tabpar.evaluation.placement import DEFAULT_TOLERANCE, Placement, failure_causes
+from tabpar.evaluation.placement import Placement
 from tabpar.evaluation.probes import findings_lines
 from tabpar.execution.provenance import library_versions
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 from tabpar.owndata.difficulty import EASY_PERCENTILE, HARD_PERCENTILE
+from tabpar.owndata.explanation import (
+    leakage_headline,
+    missing_ensembles,
+)
 from tabpar.owndata.inference import (
     inferred_items,
     inferred_text,
@@ -238,190 +240,3 @@ class Calibration:
         out += ["", "Rerun with nothing inferred:", "", "```",
                 rerun_command(self.data, self.task, self.given), "```", ""]
         return "\n".join(out)
-
-
-# --- the answer ----------------------------------------------------------------------------
-
-def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnostics: list,
-                   par_gain_share: float | None, n_holdout: int, ensembles: list,
-                   tolerance: float = DEFAULT_TOLERANCE) -> str:
-    """One paragraph: is a weak score more likely the pipeline's or the data's, with numbers.
-
-    Claims only differences outside the noise band; says so when the evidence is inconclusive.
-
-    Parameters
-    ----------
-    p : Placement
-        The user's score placed against the zoo's run on the same split.
-    dataset : str
-        ``hard``, ``typical``, ``easy`` or ``unknown`` (``dataset_label``).
-    percentile : float or None
-        The task's difficulty percentile among the suite's tasks (0–100, higher = harder).
-    diagnostics : list of Diagnostic
-        The diagnostics' answers (``run_diagnostics``).
-    par_gain_share : float or None
-        Par's gain share: 0 = the naive floor, 1 = the best default ensemble.
-    n_holdout : int
-        Rows in the holdout.
-    ensembles : list of str
-        The default ensembles that ran.
-    tolerance : float
-        The placement's tolerance (gain-share units) for calling a score under par.
-
-    Returns
-    -------
-    str
-        The verdict first, then one sentence per finding worth a look.
-    """
-    d = {x.name: x for x in diagnostics}
-    # a suspected leak comes first: every number after it may be inflated by that column
-    leads = [leakage_headline(d.get("leakage")), _provisional_note(ensembles, p),
-             _verdict(p, dataset, percentile, par_gain_share, n_holdout, tolerance)]
-    notes = [_shift_note(d.get("shift")), _optimism_note(d.get("split-optimism")),
-             _learning_curve_note(d.get("learning-curve"), p),
-             _duplicates_note(d.get("conflicting-duplicates"))]
-    return " ".join(note for note in leads + notes if note)
-
-
-def _verdict(p: Placement, dataset: str, percentile: float | None, par_gain_share: float | None,
-             n_holdout: int, tolerance: float) -> str:
-    """The answer's first sentence: pipeline, data, neither, or inconclusive."""
-    noise = f"±{fmt(p.noise, 3)}"
-    base = (f"on the same {n_holdout:,} holdout rows the standard baseline gets par "
-            f"{fmt(p.par)} (the median default ensemble) and best {fmt(p.best)} "
-            f"({p.best_model}) against a naive floor of {fmt(p.naive)}")
-    where = ("" if percentile is None else
-             f"the dataset is {dataset} for the suite (difficulty percentile {percentile:.0f})")
-    score = f"your {p.metric} {fmt(p.score)}"
-    if p.verdict == "worse-than-naive":
-        return (f"The pipeline: {score} is worse than the naive floor ({fmt(p.naive)}) by more "
-                f"than the noise ({noise}), which no dataset explains; {base}. Look for "
-                f"{failure_causes(p.metric)}.")
-    if p.gain_share is None:
-        return (f"The data: the standard baseline does not beat the naive floor beyond the "
-                f"noise on this split (best {p.best_model} {fmt(p.best)} vs naive "
-                f"{fmt(p.naive)}, {noise}), so a score near the floor — {score} — is what "
-                f"these columns allow, not a fault of the pipeline"
-                + (f"; {where}" if where else "") + ".")
-    if p.verdict == "below-baseline":
-        return (f"More likely the pipeline: {base}, and {score} (gain share {p.gain_share:.2f} against "
-                f"par's {par_gain_share:.2f}) is below par by more than the noise ({noise}), so these "
-                f"rows allow more than the pipeline gets"
-                + (f"; that {where} does not explain the gap, because the baseline's "
-                   f"numbers come from the same split"
-                   if dataset == "hard" else (f"; {where}" if where else ""))
-                + ". Usual causes: category codes learned separately on the holdout rows, a "
-                  "target transform forgotten, rows shuffled against row_id, a leaky or random "
-                  "validation split during tuning.")
-    if p.verdict == "above-baseline":
-        return (f"Neither: {score} beats the best default ensemble ({p.best_model} "
-                f"{fmt(p.best)}) by more than the noise ({noise})"
-                + (f"; {where}" if where else "") + ".")
-    if par_gain_share is not None and p.gain_share < par_gain_share - tolerance:
-        return (f"Inconclusive: {score} (gain share {p.gain_share:.2f}) is under par ({fmt(p.par)}, "
-                f"gain share {par_gain_share:.2f}) but not by more than the noise of these "
-                f"{n_holdout:,} holdout rows ({noise}), so the evidence supports neither the "
-                f"pipeline nor the data as the cause; a larger holdout"
-                + ("" if p.paired else " or a predictions file (for a paired band)")
-                + " would settle it" + (f"; {where}" if where else "") + ".")
-    if dataset == "hard":
-        return (f"The data, not the pipeline: {score} matches the standard baseline (gain share "
-                f"{p.gain_share:.2f}, par {par_gain_share:.2f}, differences inside the noise {noise}), "
-                f"and {where}, so a weak-looking score is what these columns allow.")
-    return (f"Not the pipeline: {score} matches the standard baseline (gain share "
-            f"{p.gain_share:.2f}, par {par_gain_share:.2f}, differences inside the noise {noise})"
-            + (f"; {where}, so the score is about what default models get from these "
-               f"columns" if where else "") + ".")
-
-
-def leakage_headline(leak) -> str | None:
-    """When a column alone reaches most of the full model's gain: the answer's first sentence,
-    since a leaked target inflates the baseline and every verdict measured against it."""
-    if leak is None or not leak.flag:
-        return None
-    top = leak.numbers["columns"][0]
-    suspects = leak.numbers["suspects"]
-    names = ", ".join(repr(c) for c in suspects[:3])
-    one = len(suspects) == 1
-    reach = (f"{'alone reaches' if one else 'each alone reach up to'} "
-             f"{top['share']:.0%} of the full model's gain")
-    return (f"Possible leak first: {names} {reach}. If {'it restates' if one else 'they restate'}"
-            f" the target or {'is' if one else 'are'} known only after it, drop "
-            f"{'it' if one else 'them'} (--drop) and run again, since the baseline and every "
-            f"verdict measured against it are inflated; if {'it is a' if one else 'they are'} "
-            f"legitimately dominant column{'' if one else 's'}, what follows stands.")
-
-
-def missing_ensembles(ensembles) -> list[str]:
-    """The default ensembles that did not run (budget, --models or a failure)."""
-    return [m for m in DEFAULT_ENSEMBLES if m not in ensembles]
-
-
-def _provisional_note(ensembles: list, p: Placement) -> str | None:
-    """Par and best are defined over every default ensemble: a verdict on fewer is provisional
-    (except worse-than-naive, which does not depend on them)."""
-    missing = missing_ensembles(ensembles)
-    if not missing or p.verdict == "worse-than-naive":
-        return None
-    consequence = {
-        "above-baseline": "the score may no longer beat the best",
-        "below-baseline": "the gap to par may shrink or grow",
-        "at-baseline": "the score could turn out below par",
-    }[p.verdict]
-    return (f"Provisional: this verdict rests on {len(ensembles)} of the "
-            f"{len(DEFAULT_ENSEMBLES)} default ensembles ({', '.join(ensembles)}); "
-            f"{', '.join(missing)} did not run. Par and best are defined over all "
-            f"{len(DEFAULT_ENSEMBLES)}: with the others best can only improve and par can move "
-            f"either way, so {consequence}; run without --budget (or with every model) for the "
-            f"final verdict.")
-
-
-def _shift_note(sh) -> str | None:
-    """Holdout rows unlike the training rows: a limit for every pipeline alike."""
-    if sh is None or not sh.flag:
-        return None
-    if sh.numbers.get("auc") is not None and sh.numbers["auc"] >= 0.7:
-        drivers = ", ".join(x["column"] for x in sh.numbers["drivers"][:2])
-        return (f"The holdout rows differ from the training rows (train-vs-holdout "
-                f"ROC AUC {sh.numbers['auc']:.2f}"
-                + (f", mostly through {drivers}" if drivers else "")
-                + "); that limits the baseline as much as any pipeline — it is the "
-                  "data or the choice of split.")
-    return ("Some columns shift between training and holdout rows (see shift): "
-            "that limits any pipeline alike.")
-
-
-def _optimism_note(opt) -> str | None:
-    """A random validation split that flatters the score on a time holdout."""
-    if opt is None or not opt.flag:
-        return None
-    return (f"A random split scores {fmt(opt.numbers['random_score'])} against "
-            f"{fmt(opt.numbers['time_score'])} on the time holdout: a validation score "
-            f"from a random split would have been optimistic.")
-
-
-def _learning_curve_note(curve, p: Placement) -> str | None:
-    """Whether more rows of the same kind would likely help."""
-    if curve is None or curve.numbers.get("gain_last") is None:
-        return None
-    points = curve.numbers["points"]
-    if curve.flag:
-        return (f"The default model still improves with more rows "
-                f"({fmt(points[-2]['score'])} → {fmt(points[-1]['score'])} from "
-                f"{points[-2]['rows']:,} to {points[-1]['rows']:,} rows), so more data "
-                f"would likely help.")
-    if p.verdict != "below-baseline" and p.verdict != "worse-than-naive":
-        return ("More rows of the same kind are unlikely to help (the learning curve "
-                "is flat within the noise).")
-    return None
-
-
-def _duplicates_note(dup) -> str | None:
-    """Rows with identical features and different targets: a floor no model passes."""
-    if dup is None or not dup.flag:
-        return None
-    floor = (f"an RMSE floor of {fmt(dup.numbers['rmse_floor'])} in target units"
-             if "rmse_floor" in dup.numbers else
-             f"at least {dup.numbers['error_floor']:.1%} of rows misclassified")
-    return (f"{dup.numbers['conflicting_share']:.1%} of rows have identical features "
-            f"but different targets ({floor} over all rows), a floor no model passes.")

@@ -34,10 +34,11 @@ from tabpar.evaluation.reference import Reference
 from tabpar.execution.cache import load_arrays, prepare_task
 from tabpar.execution.executors import connect_check
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
-from tabpar.owndata.answer import Calibration, compose_answer
+from tabpar.owndata.answer import Calibration
 from tabpar.owndata.budget import reserve_seconds, run_zoo, seconds_per_cost, zoo_order
 from tabpar.owndata.diagnostics import run_diagnostics, task_data
 from tabpar.owndata.difficulty import dataset_label, suite_difficulties
+from tabpar.owndata.explanation import compose_answer
 from tabpar.owndata.inference import calibration_task
 
 SUITE_NAME = "calibrate"

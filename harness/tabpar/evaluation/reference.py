@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import sys
+import time
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -234,9 +235,13 @@ def build_reference(suite: str = "default", out: str | Path | None = None, seeds
         raise UserError(f"{out} already holds a finished reference; pass --replace to rebuild "
                         f"it there (its jobs are reused where nothing changed), or choose "
                         f"another --out.")
+    started = time.monotonic()
     result = run_suite(suite=suite, seeds=seeds, out=out, workers=workers, progress=progress)
     frame = load_results(out)
     provenance = {
+        # wall time of this invocation; a resumed build adds the jobs it reused from before
+        "build_seconds": round(time.monotonic() - started),
+        "jobs_reused": int(result.reused),
         "command": command or " ".join(["tabpar"] + sys.argv[1:]),
         "created_at": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "suite": result.suite, "seeds": seeds, "cores": available_cores(),

@@ -154,6 +154,7 @@ def test_run_table_one_decimals_per_column_and_no_seed_footnote_for_one_seed(qui
     from tabpar.cli.render import render_run
 
     text = render_run(quick_run)
+    assert str(quick_run) == text and not text.startswith("RunResult(")  # prints as the CLI does
     assert "± is the standard deviation" not in text  # one seed: no spread to explain
     assert " 1 jobs" not in text
     # within each task's table the holdout column shares one number of decimals

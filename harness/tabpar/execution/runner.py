@@ -42,6 +42,7 @@ from tabpar.execution.jobs import (
 )
 from tabpar.execution.progress import Progress
 from tabpar.execution.provenance import library_versions
+from tabpar.execution.run_text import run_text
 from tabpar.execution.store import STORE_FORMAT, ResultsStore
 from tabpar.models.zoo import check_models
 from tabpar.procedure.variants import Procedure, builtin
@@ -79,6 +80,9 @@ class RunResult:
                               "lower_is_better": t["lower_is_better"], **stats}
                              for name, t in self.tasks.items()
                              for model, stats in t["models"].items()])
+
+    def __str__(self) -> str:
+        return run_text(self)
 
     def _repr_html_(self) -> str:
         summary = {k: v for k, v in self.to_dict().items() if k not in ("tasks", "failures")}

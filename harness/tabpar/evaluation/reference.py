@@ -55,9 +55,11 @@ def resolve_reference(reference: str | Path) -> Path:
 
 
 def published_names() -> list[str]:
-    """The published references that ship with tabpar (``default``, ``quick``, ...)."""
+    """The published references that ship with tabpar (``default``, ``quick``, ...): finished
+    builds only (a build still running, or interrupted, has no provenance.json yet)."""
     folder = published_root() / "reference"
-    return sorted(p.name for p in folder.glob("*") if (p / RUN_FILE).is_file())
+    return sorted(p.name for p in folder.glob("*")
+                  if (p / RUN_FILE).is_file() and (p / "provenance.json").is_file())
 
 
 # without a suite, the widest published reference: more tasks make a finer difficulty scale

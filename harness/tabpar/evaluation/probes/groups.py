@@ -34,6 +34,9 @@ N_BINS = 10  # quantile bins of a numeric or date column
 MIN_GROUP_ROWS = 10  # rarer levels are pooled into one group
 
 
+MIN_EXPLAINED = 0.05  # share of the ranked per-row differences a column's groups must explain
+
+
 def row_losses(metric_name: str, y, p) -> np.ndarray:
     """Each holdout row's loss under ``metric_name`` (bigger = worse), in units whose mean is
     the metric's loss (squared units for RMSE/RMSLE/R², 1 − AUC for ROC AUC).
@@ -174,9 +177,11 @@ def examine(ctx, n_boot: int = 500) -> list[Finding]:
     se = float(np.std(spread[np.isfinite(spread)], ddof=1))
     needed = float(stats.norm.ppf(1 - 0.025 / len(groups)))  # two-sided 95%, Bonferroni
     z = excess[column] / se if se > 0 else float("inf")
-    if not z > needed:
-        return []
     user_share, ref_share = explained(codes, d_user), explained(codes, d_ref)
+    # on a large holdout a grouping explaining 1% is "significant" but explains little of the
+    # gap: a finding must also be large enough to be the mistake's main trace
+    if not z > needed or user_share < MIN_EXPLAINED:
+        return []
     worst = _worst_group(features, column, codes, d_user)
     sentence = (f"Your predictions lose to par ({ctx.par_model}) mostly along '{column}': its "
                 f"groups explain {user_share:.0%} of the (ranked) per-row loss differences, "

@@ -266,7 +266,7 @@ def test_budget_is_not_inflated_by_a_small_tables_slow_diagnostic_fit(monkeypatc
         # bookkeeping 0.3 s a run, plus each model's reference-predicted time
         clock[0] += 0.3 + predict_seconds(model, "regression", 3000, 20, threads=2,
                                           target="job")
-        return SimpleNamespace(failures=[], tasks={"daily": {
+        return SimpleNamespace(failures=[], interrupted=False, tasks={"daily": {
             "n_train": 3000, "n_features": 20, "models": {model: {}}}})
 
     monkeypatch.setattr(budget, "run_suite", stand_in_run)

@@ -297,3 +297,18 @@ def test_the_widest_published_reference_is_the_default(monkeypatch):
     assert reference.reference_for("quick") == "quick"
     monkeypatch.setattr(reference, "published_names", lambda: ["default", "quick"])
     assert reference.reference_for(None) == "default"
+
+
+def test_calibrate_baseline_table_shares_one_number_of_decimals():
+    from types import SimpleNamespace
+
+    from tabpar.owndata.answer import Calibration
+
+    # synthetic stand-in scores: one below 10 and one above, as in a real RMSE table
+    result = SimpleNamespace(placement=SimpleNamespace(lower_is_better=True, best_model="lgbm"),
+                             baseline={"naive": {"score": 23.2, "train_score": 22.9,
+                                                 "fit_seconds": 0.0},
+                                       "lgbm": {"score": 7.9879, "train_score": 5.1,
+                                                "fit_seconds": 1.2}}, skipped=[])
+    rows = [line.split() for line in Calibration._baseline_lines(result)[1:]]
+    assert [r[1] for r in rows] == ["7.99", "23.20"]

@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from tabpar.common.files import atomic_write_text
+from tabpar.common.text import column_places, format_fixed
 from tabpar.common.text import format_number as fmt
 from tabpar.data.suites import Task
 from tabpar.evaluation.placement import Placement
@@ -146,10 +147,13 @@ class Calibration:
         sign = 1 if p.lower_is_better else -1
         rows = sorted(self.baseline.items(), key=lambda kv: sign * kv[1]["score"])
         lines = [f"  {'model':<8} {'holdout':>12} {'train':>12} {'fit s':>8}"]
+        # one number of decimals for the whole table, so its numbers line up and compare
+        places = column_places([v for _, s in rows for v in (s["score"], s["train_score"])])
         for model, s in rows:
             tag = ("  (floor)" if model == "naive" else "  (linear)" if model == "linear"
                    else "  best" if model == p.best_model else "")
-            lines.append(f"  {model:<8} {fmt(s['score']):>12} {fmt(s['train_score']):>12} "
+            lines.append(f"  {model:<8} {format_fixed(s['score'], places):>12} "
+                         f"{format_fixed(s['train_score'], places):>12} "
                          f"{s['fit_seconds']:>8.2f}{tag}")
         for s in self.skipped:
             lines.append(f"  {s['model']:<8} {'skipped':>12}   (budget; estimated "

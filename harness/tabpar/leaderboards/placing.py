@@ -11,7 +11,7 @@ from tabpar.evaluation.placement import (
     DEFAULT_TOLERANCE,
     Placement,
     choose_reference,
-    place_on_reference,
+    place_task,
     reference_task,
 )
 from tabpar.evaluation.stats import competition_rank, percentile_of
@@ -153,14 +153,15 @@ def place(task: str, score: float | None = None, predictions: str | Path | None 
     board = None
     if (score is None) == (predictions is None):
         raise UserError("Give exactly one of --score and --predictions.")
+    # the reference is chosen and read once (choosing reads the predictions' row ids)
     reference, reason = choose_reference(task, reference, suite, predictions)
+    ref, definition = reference_task(task, suite, reference)
     if leaderboard is not None:  # checked before the slow part, so a mistake fails fast
         board = (leaderboard if isinstance(leaderboard, Leaderboard)
                  else load_leaderboard(leaderboard))
-        ref, definition = reference_task(task, suite, reference)
         check_leaderboard_fits(board, definition, get_metric(ref.task(task).metric))
-    placement = place_on_reference(task, score=score, predictions=predictions, suite=suite,
-                                   reference=reference, tolerance=tolerance, force=force)
+    placement = place_task(definition, ref, score=score, predictions=predictions,
+                           tolerance=tolerance, force=force)
     placement.reference_reason = reason
     if board is not None:
         numbers = place_on_leaderboard(placement.score, board)

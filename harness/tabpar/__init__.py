@@ -14,27 +14,52 @@ One entry point per job (each returns a result object that prints itself, conver
 
 The command line (``tabpar --help``) is a thin layer over these.
 """
-from tabpar import leaderboards
-from tabpar.common.errors import UserError
-from tabpar.common.metrics import METRICS, get_metric
-from tabpar.data.export import ExportedSplit, export
-from tabpar.data.suites import Task, load_suite
-from tabpar.evaluation.comparison import Comparison, compare
-from tabpar.evaluation.placement import Placement
-from tabpar.execution.cache import prepare_task
-from tabpar.execution.runner import RunResult
-from tabpar.execution.runner import run_suite as run
-from tabpar.execution.store import load_results
-from tabpar.leaderboards.placing import place
-from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
-from tabpar.owndata.answer import Calibration
-from tabpar.owndata.calibration import calibrate
-from tabpar.procedure.baseline import BaselinePrep
-from tabpar.procedure.calendar import calendar_fields
+import importlib
 
-run_suite = run  # the name earlier versions documented
+# name → (module, attribute); imported on first use, so that a command line which needs neither
+# pandas nor scikit-learn (a warm rerun, ``tabpar suites``) does not pay their imports (about 2 s)
+_EXPORTS = {
+    "run": ("tabpar.execution.runner", "run_suite"),
+    "run_suite": ("tabpar.execution.runner", "run_suite"),  # the name earlier versions documented
+    "RunResult": ("tabpar.execution.runner", "RunResult"),
+    "load_results": ("tabpar.execution.store", "load_results"),
+    "export": ("tabpar.data.export", "export"),
+    "ExportedSplit": ("tabpar.data.export", "ExportedSplit"),
+    "place": ("tabpar.leaderboards.placing", "place"),
+    "Placement": ("tabpar.evaluation.placement", "Placement"),
+    "calibrate": ("tabpar.owndata.calibration", "calibrate"),
+    "Calibration": ("tabpar.owndata.answer", "Calibration"),
+    "compare": ("tabpar.evaluation.comparison", "compare"),
+    "Comparison": ("tabpar.evaluation.comparison", "Comparison"),
+    "leaderboards": ("tabpar.leaderboards", None),
+    "BaselinePrep": ("tabpar.procedure.baseline", "BaselinePrep"),
+    "calendar_fields": ("tabpar.procedure.calendar", "calendar_fields"),
+    "prepare_task": ("tabpar.execution.cache", "prepare_task"),
+    "Task": ("tabpar.data.suites", "Task"),
+    "load_suite": ("tabpar.data.suites", "load_suite"),
+    "METRICS": ("tabpar.common.metrics", "METRICS"),
+    "get_metric": ("tabpar.common.metrics", "get_metric"),
+    "MODELS": ("tabpar.models.zoo", "MODELS"),
+    "DEFAULT_ENSEMBLES": ("tabpar.models.zoo", "DEFAULT_ENSEMBLES"),
+    "UserError": ("tabpar.common.errors", "UserError"),
+}
 
 __all__ = ["run", "run_suite", "load_results", "export", "place", "calibrate", "compare",
            "leaderboards", "RunResult", "ExportedSplit", "Placement", "Calibration",
            "Comparison", "BaselinePrep", "calendar_fields", "prepare_task", "Task",
            "load_suite", "METRICS", "get_metric", "MODELS", "DEFAULT_ENSEMBLES", "UserError"]
+
+
+def __getattr__(name: str):
+    try:
+        module_name, attribute = _EXPORTS[name]
+    except KeyError:
+        raise AttributeError(f"module 'tabpar' has no attribute {name!r}") from None
+    module = importlib.import_module(module_name)
+    value = module if attribute is None else getattr(module, attribute)
+    globals()[name] = value  # later look-ups skip this function
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(__all__))

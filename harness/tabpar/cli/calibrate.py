@@ -5,8 +5,7 @@ import json
 import sys
 
 from tabpar.cli import options
-from tabpar.data.suites import TASK_TYPES
-from tabpar.owndata.inference import DEFAULT_FRACTION
+from tabpar.data.suites import DEFAULT_HOLDOUT_FRACTION, TASK_TYPES
 
 
 def add_parser(subparsers) -> None:
@@ -63,7 +62,7 @@ def _add_task_options(cal) -> None:
                           "seed 0)")
     size = cal.add_mutually_exclusive_group()
     size.add_argument("--holdout-fraction", type=float, default=None, metavar="F",
-                      help=f"share of rows held out (default: {DEFAULT_FRACTION})")
+                      help=f"share of rows held out (default: {DEFAULT_HOLDOUT_FRACTION})")
     size.add_argument("--holdout-rows", type=int, default=None, metavar="N",
                       help="number of rows held out")
     size.add_argument("--cutoff", default=None, metavar="DATE",

@@ -6,7 +6,7 @@ import sys
 from pathlib import Path
 
 from tabpar.cli import options
-from tabpar.evaluation.comparison import ALPHA, DEFAULT_MODELS
+from tabpar.evaluation.comparison_result import ALPHA, DEFAULT_MODELS
 from tabpar.procedure.variants import BUILTIN, VARIANT_KEYS
 
 

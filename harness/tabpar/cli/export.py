@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 from tabpar.cli import options
-from tabpar.data.export import FORMATS
+from tabpar.data.suite_values import EXPORT_FORMATS
 
 
 def add_parser(subparsers) -> None:
@@ -13,7 +13,7 @@ def add_parser(subparsers) -> None:
     export.add_argument("task", help="task name")
     export.add_argument("dir", help="folder to write into")
     options.add_suite(export, options.DEFAULT_SUITE, "suite name or path")
-    export.add_argument("--format", default=options.EXPORT_FORMAT, choices=list(FORMATS),
+    export.add_argument("--format", default=options.EXPORT_FORMAT, choices=list(EXPORT_FORMATS),
                         help=f"file format (default: {options.EXPORT_FORMAT})")
     export.set_defaults(func=export_command)
 

@@ -2,6 +2,7 @@
 notebooks."""
 from __future__ import annotations
 
+import difflib
 import html
 
 import numpy as np
@@ -114,3 +115,25 @@ def plain(value):
     """A NumPy scalar as the Python number or text it holds (for JSON and messages); anything
     else unchanged."""
     return value.item() if isinstance(value, np.generic) else value
+
+
+def close_matches(word: str, options, n=3) -> str:
+    """A hint for an error message naming up to ``n`` of ``options`` close to ``word``.
+
+    Parameters
+    ----------
+    word : str
+        The name the user gave.
+    options
+        The valid names.
+    n : int
+        Most names to suggest.
+
+    Returns
+    -------
+    str
+        ``" Did you mean 'a', 'b'?"`` (with a leading space, to follow a sentence), or ``""``
+        when nothing is close.
+    """
+    matches = difflib.get_close_matches(word, list(options), n=n, cutoff=0.5)
+    return f" Did you mean {', '.join(repr(m) for m in matches)}?" if matches else ""

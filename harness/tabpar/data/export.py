@@ -10,17 +10,20 @@ import io
 import json
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-import pandas as pd
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.files import atomic_write_bytes, atomic_write_text
 from tabpar.common.text import html_table
 from tabpar.data.sources import LoadedTask
 from tabpar.data.split import Split, load_and_split
+from tabpar.data.suite_values import EXPORT_FORMATS
 from tabpar.data.suites import Task
 
-FORMATS = ("csv", "parquet")
+FORMATS = EXPORT_FORMATS
 
 
 def _encode(frame: pd.DataFrame, fmt: str) -> bytes:

@@ -32,8 +32,10 @@ import urllib.request
 from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-import pandas as pd
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.files import (
@@ -216,6 +218,7 @@ def _describe(task, task_id: int) -> dict:
 
 
 def _get_data(dataset, target: str) -> tuple[pd.DataFrame, pd.Series]:
+    import pandas as pd
     X, y, _, _ = dataset.get_data(target=target)  # a DataFrame by default since openml 0.15
     if not isinstance(X, pd.DataFrame):
         raise UserError(f"The openml package returned the data of dataset {dataset.dataset_id} "

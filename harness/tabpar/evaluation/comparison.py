@@ -19,14 +19,18 @@ from datetime import datetime
 from pathlib import Path
 
 import numpy as np
-from scipy import stats
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.text import count_of, format_p
 from tabpar.data.suite_values import check_seconds, check_seed_count, check_tolerance
 from tabpar.data.suites import Task, load_suite
-from tabpar.evaluation.comparison_result import ALPHA, Comparison, TaskComparison
+from tabpar.evaluation.comparison_result import (
+    ALPHA,
+    DEFAULT_MODELS,
+    Comparison,
+    TaskComparison,
+)
 from tabpar.evaluation.reference import check_format, published_root
 from tabpar.evaluation.stats import (
     N_BOOTSTRAP,
@@ -52,7 +56,6 @@ from tabpar.models.zoo import check_models
 from tabpar.procedure.variants import builtin
 
 AA_SEED_OFFSET = 1000
-DEFAULT_MODELS = ("rf", "lgbm")
 N_BOOTSTRAP_LARGE = 250  # for holdouts over LARGE_HOLDOUT rows, to keep compare fast
 LARGE_HOLDOUT = 20_000
 
@@ -122,6 +125,7 @@ def band_and_p(delta: float, se_boot: float, se_seed: float, seed_df):
     Student's t with the seed part's degrees of freedom when seeds vary (few seeds make a poor
     variance estimate, and the normal quantile would call noise a difference); normal otherwise.
     """
+    from scipy import stats
     se = float(np.hypot(se_boot, se_seed))
     if se == 0:
         return 0.0, (1.0 if delta == 0 else 0.0)

@@ -7,12 +7,15 @@ candidate's gain over the baseline as a share of the baseline's gain over the na
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
+from typing import TYPE_CHECKING
 
-import pandas as pd
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.text import count_of, format_p, html_table
 from tabpar.evaluation.stats import smallest_signed_rank_p
 
+DEFAULT_MODELS = ("rf", "lgbm")  # the models a comparison runs unless told otherwise
 ALPHA = 0.05  # family-wise error rate of the per-task calls, and the suite-wide test's level
 
 
@@ -79,6 +82,7 @@ class Comparison:
     def to_frame(self) -> pd.DataFrame:
         """One row per task: delta (positive = the candidate is better), its 95% band, p-values
         and the call."""
+        import pandas as pd
         return pd.DataFrame([asdict(t) for t in self.tasks])
 
     def _repr_html_(self) -> str:

@@ -12,15 +12,17 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.text import format_number as fmt
 from tabpar.common.text import html_table
-from tabpar.data.sources import read_table
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.predictions import read_predictions_file
 from tabpar.evaluation.probes import findings_lines, probe_predictions
@@ -130,6 +132,7 @@ class Placement:
     def to_frame(self) -> pd.DataFrame:
         """One row per reference run (model, seed, score), in the metric's units: the
         distribution the score was placed against."""
+        import pandas as pd
         return pd.DataFrame([{"task": self.task, "model": model, "seed_index": i, "score": v}
                              for model, values in self.reference_scores.items()
                              for i, v in enumerate(values)])
@@ -160,6 +163,9 @@ def _check_fingerprint(ref: Reference, name: str, fingerprint: str, force: bool)
 def _file_row_ids(predictions) -> np.ndarray | None:
     """The row ids of a predictions file, or None when it cannot be read as one (the full
     check, with its error, comes when the file is scored)."""
+    import pandas as pd
+
+    from tabpar.data.sources import read_table
     try:
         ids = pd.to_numeric(read_table(Path(predictions))["row_id"], errors="coerce")
     except (UserError, KeyError, OSError, ValueError):

@@ -13,13 +13,15 @@ Every mismatch is a UserError naming the file, the row or column, and the fix.
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.text import plain
-from tabpar.data.sources import read_table
 
 # rows of class probabilities must sum to 1 within this: a CSV written with 3 decimals over 20
 # classes can be off by 0.01 at most
@@ -28,6 +30,7 @@ SUM_TOLERANCE = 0.011
 
 def _row_ids(frame: pd.DataFrame, path: Path, row_id: np.ndarray, task: str) -> np.ndarray:
     """The file's row ids as integers, checked to cover the holdout exactly once."""
+    import pandas as pd
     ids = pd.to_numeric(frame["row_id"], errors="coerce")
     if ids.isna().any() or (ids % 1 != 0).any():
         bad = frame["row_id"][ids.isna() | (ids % 1 != 0)].iloc[0]
@@ -56,6 +59,7 @@ def _row_ids(frame: pd.DataFrame, path: Path, row_id: np.ndarray, task: str) -> 
 
 def _numbers(frame: pd.DataFrame, column: str, path: Path, ids: np.ndarray) -> np.ndarray:
     """A column as finite floats; UserError at the first missing, non-numeric or infinite one."""
+    import pandas as pd
     values = pd.to_numeric(frame[column], errors="coerce")
     bad = values.isna() | ~np.isfinite(values.to_numpy(dtype=float, na_value=np.nan))
     if bad.any():
@@ -95,6 +99,9 @@ def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: 
     classes : list, optional
         Multiclass: the class labels in the order the task encodes them.
     """
+    import pandas as pd
+
+    from tabpar.data.sources import read_table
     path = Path(path)
     frame = read_table(path)
     if "row_id" not in frame.columns:
@@ -114,6 +121,7 @@ def read_predictions_file(path: Path, row_id: np.ndarray, task_type: str, task: 
 
 
 def _multiclass(frame, path, row_id, task, columns) -> np.ndarray:
+    import pandas as pd
     names = [str(c) for c in frame.columns]
     frame.columns = names
     missing = [c for c in columns if c not in names]

@@ -12,15 +12,18 @@ import time
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.paths import builtin_folder, refuse_inside_package
 from tabpar.common.system import available_cores
-from tabpar.data.sources import close_matches
+from tabpar.common.text import close_matches
 from tabpar.execution.provenance import library_versions
 from tabpar.execution.runner import run_suite
 from tabpar.execution.store import (
@@ -261,6 +264,7 @@ def model_gain_shares(reference: Reference, against: Reference | None = None) ->
     ``against``: measure ``reference``'s models on the naive/best of another reference (to
     overlay a new run on the published one). Columns: task, model, score, gain_share, difficulty.
     """
+    import pandas as pd
     base = against or reference
     rows = []
     for task in reference.tasks:

@@ -9,7 +9,6 @@ ever mixes "lower is better" with "higher is better".
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats
 
 N_BOOTSTRAP = 1000  # resamples for a placement's noise band
 
@@ -140,6 +139,7 @@ def signed_rank_p(deltas, tolerance: float, se=None) -> float | None:
     standardised deltas (delta / se): still a signed-rank test of symmetry around zero, but a
     noisy task (a wide band) no longer outweighs a precise one.
     """
+    from scipy import stats
     d = np.where(np.abs(deltas) < tolerance, 0.0, np.asarray(deltas, float))
     if se is not None:
         se = np.asarray(se, float)

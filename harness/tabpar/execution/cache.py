@@ -20,11 +20,8 @@ from tabpar.data.source_index import (
     remember_fingerprint,
     source_identity,
 )
-from tabpar.data.sources import load_task
-from tabpar.data.split import split_loaded
 from tabpar.data.suites import Task
 from tabpar.execution.provenance import preparation_code_digest, tabpar_version
-from tabpar.procedure.prepare import prepare_split
 from tabpar.procedure.variants import Procedure, builtin
 
 ARRAYS = ("X_train", "y_train", "X_holdout", "y_holdout", "row_id")
@@ -117,6 +114,12 @@ def prepare_task(task: Task, cache_dir: Path | None = None,
         if meta is not None and meta["fingerprint"] == known:
             return PreparedTask(task=task, folder=folder, **meta)
     identity = source_identity(task)  # before reading: a change during the read shows later
+    # imported on a miss only: loading and preparing pull in pandas and scikit-learn, which a
+    # run served wholly from the cache never needs
+    from tabpar.data.sources import load_task
+    from tabpar.data.split import split_loaded
+    from tabpar.procedure.prepare import prepare_split
+
     loaded = load_task(task)
     remember_fingerprint(task, identity, loaded.fingerprint, cache_dir)
     folder = _entry_folder(task, loaded.fingerprint, procedure, cache_dir)

@@ -9,7 +9,6 @@ from datetime import datetime, timezone
 from functools import lru_cache
 
 import numpy as np
-from joblib import parallel_config
 
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import release_freed_memory
@@ -55,6 +54,7 @@ def execute_job(job: dict) -> dict:
 
 def _fit_and_score(job: dict) -> dict:
     """execute_job's work; its locals (model, arrays) are freed when it returns."""
+    from joblib import parallel_config
     started = datetime.now(timezone.utc).isoformat(timespec="seconds")
     row = {"task": job["task"], "model": job["model"], "seed": job["seed"],
            "metric": job["metric"], "lower_is_better": job["lower_is_better"],

@@ -15,9 +15,12 @@ import signal
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.system import available_cores
@@ -76,6 +79,7 @@ class RunResult:
     def to_frame(self) -> pd.DataFrame:
         """One row per task and model: mean and spread of the holdout score over seeds (the
         task metric's units; ``lower_is_better`` gives the direction), train score, fit time."""
+        import pandas as pd
         return pd.DataFrame([{"task": name, "model": model, "metric": t["metric"],
                               "lower_is_better": t["lower_is_better"], **stats}
                              for name, t in self.tasks.items()

@@ -14,9 +14,12 @@ import math
 import os
 import warnings
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.files import (
@@ -205,6 +208,7 @@ PREDICTION_DTYPE = np.float32
 def predictions_frame(row_id: np.ndarray, prediction: np.ndarray) -> pd.DataFrame:
     """The stored form of a job's holdout predictions: row_id, then ``prediction`` (one value
     per row) or ``proba_0 … proba_{k-1}`` (multiclass), as ``PREDICTION_DTYPE``."""
+    import pandas as pd
     prediction = np.asarray(prediction)
     data = {"row_id": np.asarray(row_id, dtype=np.int64)}
     if prediction.ndim == 1:
@@ -257,6 +261,7 @@ def _refuse_outside(folder: str | Path, target: Path, given) -> None:
 
 def align_to(ids: np.ndarray, prediction: np.ndarray, row_id: np.ndarray):
     """``prediction`` (stored in ``ids`` order) reordered to ``row_id``; None if any is absent."""
+    import pandas as pd
     position = pd.Index(ids).get_indexer(row_id)
     if (position < 0).any():
         return None
@@ -296,6 +301,7 @@ def load_results(folder: str | Path) -> pd.DataFrame:
     Columns include task, model, seed, metric, lower_is_better, score (holdout), train_score,
     fit_seconds, predict_seconds, n_train, n_holdout, fingerprint, status, error, started_at.
     """
+    import pandas as pd
     folder = Path(folder)
     path = folder / JOBS_FILE
     if not path.exists():

@@ -4,9 +4,12 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.files import (
@@ -66,6 +69,7 @@ def fetch_openml_evaluations(task_id: int, measure: str) -> tuple[pd.DataFrame, 
     Asks the server first (and caches the answer); when the server cannot be reached, the last
     cached answer is used and the returned dict says so (``from_cache``, ``fetched_at``).
     """
+    import pandas as pd
     data_path, meta_path = _evaluations_cache(task_id, measure)
     what = f"the {measure} run evaluations of OpenML task {task_id}"
     try:

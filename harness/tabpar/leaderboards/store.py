@@ -26,9 +26,12 @@ import warnings
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.files import (
@@ -44,7 +47,6 @@ from tabpar.common.metrics import Metric, get_metric
 from tabpar.common.paths import LEADERBOARDS_ENV as STORE_ENV
 from tabpar.common.paths import leaderboard_store
 from tabpar.common.text import plain
-from tabpar.data.sources import read_table
 from tabpar.evaluation.reference import published_root
 from tabpar.execution.provenance import tabpar_version
 
@@ -171,6 +173,7 @@ def _summary(meta: dict, path: Path) -> dict:
 
 def validate_scores(frame: pd.DataFrame, column: str, where: str) -> np.ndarray:
     """The score column as finite floats; UserError naming the first bad value otherwise."""
+    import pandas as pd
     if column not in frame.columns:
         close = difflib.get_close_matches(str(column), [str(c) for c in frame.columns], n=3,
                                           cutoff=0.5)
@@ -264,6 +267,7 @@ def import_leaderboard(path: str | Path, task: str, score_column: str,
     ``suite`` (default: the built-in suites), and a UserError when the task is not known there.
     Nothing is written unless every score is a finite number and there are at least two.
     """
+    from tabpar.data.sources import read_table
     path = Path(path)
     task = str(task).strip()
     if not task:

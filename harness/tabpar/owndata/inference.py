@@ -11,18 +11,16 @@ import re
 import shlex
 from pathlib import Path
 
-import pandas as pd
-
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import DEFAULT_METRIC, get_metric
-from tabpar.common.text import plain
+from tabpar.common.text import close_matches, plain
 from tabpar.data.export import describe, write_split
-from tabpar.data.sources import close_matches, parse_dates, read_table
+from tabpar.data.sources import parse_dates, read_table
 from tabpar.data.split import load_and_split
-from tabpar.data.suites import TASK_TYPES, Holdout, Task
+from tabpar.data.suites import DEFAULT_HOLDOUT_FRACTION, TASK_TYPES, Holdout, Task
 from tabpar.data.target import as_numbers
 
-DEFAULT_FRACTION = 0.2
+DEFAULT_FRACTION = DEFAULT_HOLDOUT_FRACTION
 
 
 def _task_name(path: Path) -> str:
@@ -63,6 +61,7 @@ def calibration_task(data, target: str, type: str | None = None, metric: str | N
     (Task, dict)
         The task, and ``{field: {"value": ..., "reason": str}}`` for each inferred option.
     """
+    import pandas as pd
     path = Path(data).expanduser().resolve()
     frame = read_table(path)
     where = path.name

@@ -26,7 +26,6 @@ from typing import Callable
 from tabpar.common.errors import UserError
 from tabpar.common.files import read_bounded
 from tabpar.data.suites import Task, tomllib
-from tabpar.procedure.baseline import BaselinePrep
 
 BUILTIN = "builtin"
 VARIANT_KEYS = {"calendar": bool, "missing_flags": bool, "fill": str, "one_hot_max_levels": int}
@@ -58,6 +57,9 @@ def task_columns(task: Task) -> TaskColumns:
 
 def _builtin_build(options: dict):
     def build(task: Task):
+        # imported here: the baseline pulls in pandas and scikit-learn, which a command that
+        # only reads finished results never needs
+        from tabpar.procedure.baseline import BaselinePrep
         cols = task_columns(task)
         return BaselinePrep(date_columns=list(cols.date_columns), ordinal=cols.ordinal,
                             **options)

@@ -18,13 +18,14 @@ file (and ``calibrate --predictions``) runs them through ``probe_predictions``.
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
-from tabpar.data.sources import read_table
-from tabpar.data.split import load_and_split
 from tabpar.evaluation.probes import (
     alignment,
     classification,
@@ -117,6 +118,9 @@ def run_probes(ctx: ProbeContext, n_boot: int = PROBE_BOOTSTRAP,
 def holdout_features(task, row_id) -> pd.DataFrame:
     """The holdout rows' feature columns (dates parsed, drops applied; no target), in the
     order of ``row_id``, through the one load → target → split path export uses."""
+    import pandas as pd
+
+    from tabpar.data.split import load_and_split
     rows = load_and_split(task)
     frame = rows.loaded.features.iloc[rows.split.holdout]
     ids = np.asarray(rows.loaded.row_ids)[rows.split.holdout]
@@ -129,6 +133,9 @@ def holdout_features(task, row_id) -> pd.DataFrame:
 def file_order(path, row_id) -> np.ndarray:
     """For each row of a predictions file, in the file's order, its position in ``row_id``.
     The file must already have passed ``read_predictions_file``'s checks."""
+    import pandas as pd
+
+    from tabpar.data.sources import read_table
     ids = pd.to_numeric(read_table(Path(path))["row_id"]).astype(np.int64).to_numpy()
     return pd.Index(np.asarray(row_id)).get_indexer(ids)
 

@@ -13,10 +13,12 @@ better, ``Metric.gain``), so no probe mixes "lower is better" with "higher is be
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import Metric

@@ -9,7 +9,6 @@ paired noise. Rows of class probabilities that do not sum to 1 are a fact, named
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
 from tabpar.common.text import format_number as fmt
 from tabpar.evaluation.probes.base import Candidate, Finding
@@ -41,6 +40,7 @@ def propose(ctx) -> list[Candidate]:
 def column_order(y, proba) -> np.ndarray:
     """The column of ``proba`` that best matches each class (an assignment maximising the mean
     probability each class's rows get in its matched column)."""
+    from scipy.optimize import linear_sum_assignment
     y = np.asarray(y, int)
     k = proba.shape[1]
     mean = np.zeros((k, k))  # class × column

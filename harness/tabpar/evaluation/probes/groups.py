@@ -21,9 +21,12 @@ wrongly ordered positive-negative pairs it takes part in.
 """
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-import pandas as pd
-from scipy import stats
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from tabpar.common.text import format_number as fmt
 from tabpar.evaluation.probes.base import Finding
@@ -84,6 +87,7 @@ def _auc_losses(positive, score) -> np.ndarray:
 def _codes(values: pd.Series) -> np.ndarray:
     """Group codes of one column: levels, or quantile bins when numeric with many values;
     missing values form their own group, rare levels are pooled."""
+    import pandas as pd
     if pd.api.types.is_datetime64_any_dtype(values):
         values = pd.Series(values.to_numpy(dtype="datetime64[ns]").astype("int64"),
                            index=values.index).where(values.notna())
@@ -102,6 +106,7 @@ def _codes(values: pd.Series) -> np.ndarray:
 
 def groupings(features: pd.DataFrame) -> dict:
     """Name → group codes of every way the probe groups the rows."""
+    import pandas as pd
     out = {}
     for column in features.columns:
         values = features[column]
@@ -141,6 +146,7 @@ def explained(codes, d, weights=None) -> float:
 
 
 def examine(ctx, n_boot: int = 500) -> list[Finding]:
+    from scipy import stats
     if not ctx.below_par or ctx.metric.name not in ("rmse", "rmsle", "mae", "r2", "log_loss",
                                                     "accuracy", "roc_auc"):
         return []
@@ -199,6 +205,7 @@ def examine(ctx, n_boot: int = 500) -> list[Finding]:
 
 def _suspects(values: pd.Series) -> str:
     """The usual mistakes for a column of this kind."""
+    import pandas as pd
     if pd.api.types.is_datetime64_any_dtype(values):
         return ("a date parsed differently from the training rows (day and month swapped by a "
                 "day-first reading?) or its calendar fields computed differently")
@@ -210,11 +217,13 @@ def _suspects(values: pd.Series) -> str:
 
 def _ranks(d) -> np.ndarray:
     """Ranks scaled to 0..1 (ties share their mean rank)."""
+    from scipy import stats
     return (stats.rankdata(d) - 1) / max(len(d) - 1, 1)
 
 
 def _worst_group(features, column, codes, d) -> str:
     """The group losing most per row, in words."""
+    import pandas as pd
     size = np.bincount(codes)
     mean = np.bincount(codes, weights=d) / np.maximum(size, 1)
     g = int(np.argmax(mean))

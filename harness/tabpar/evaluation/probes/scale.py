@@ -13,7 +13,6 @@ when its ratio to par's factor is near a power of ten.
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import minimize_scalar
 
 from tabpar.common.errors import UserError
 from tabpar.common.text import format_number as fmt
@@ -38,6 +37,7 @@ def _loss(ctx, prediction) -> float:
 
 def best_factor(ctx, p) -> float:
     """The factor ``a`` (> 0) that gives ``p × a`` the best score."""
+    from scipy.optimize import minimize_scalar
     grid = np.arange(-DECADES, DECADES + 1e-9, 0.1)
     losses = [_loss(ctx, p * 10 ** g) for g in grid]
     g0 = grid[int(np.argmin(losses))]
@@ -48,6 +48,7 @@ def best_factor(ctx, p) -> float:
 
 
 def best_offset(ctx, p) -> float:
+    from scipy.optimize import minimize_scalar
     residual = np.asarray(ctx.y, float) - p
     if ctx.metric.name in ("rmse", "r2"):
         return float(residual.mean())

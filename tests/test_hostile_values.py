@@ -240,6 +240,26 @@ def test_jobs_of_other_data_are_not_reused_without_run_json(tmp_path, monkeypatc
     assert len(fingerprints) == 2
 
 
+def test_jobs_of_other_preparing_code_are_run_again_and_win(tmp_path, monkeypatch):
+    # a rerun after a change to loading, splitting or preparing (a new preparing-code digest)
+    # must not keep scores the old code made: every job runs again and its row wins
+    monkeypatch.chdir(tmp_path)
+    suite = write_suite(tmp_path)
+    assert main(run_args(tmp_path, suite)) == 0
+    import tabpar
+    import tabpar.execution.jobs as jobs
+
+    old_code = _strict_rows(tmp_path / "out" / "jobs.jsonl")[0]["code"]
+    monkeypatch.setattr(jobs, "preparation_code_digest", lambda: "0123456789abcdef")
+    result = tabpar.run_suite(suite, models=["naive"], seeds=1, out=tmp_path / "out", workers=1)
+    assert result.reused == 0 and result.ok == 1
+    codes = [r["code"] for r in _strict_rows(tmp_path / "out" / "jobs.jsonl")]
+    assert codes == [old_code, "0123456789abcdef"]
+    assert tabpar.load_results(tmp_path / "out")["code"].tolist() == ["0123456789abcdef"]
+    again = tabpar.run_suite(suite, models=["naive"], seeds=1, out=tmp_path / "out", workers=1)
+    assert again.reused == 1  # the new code's row is reused as usual
+
+
 def test_a_cache_entry_with_replaced_arrays_is_rebuilt(tmp_path):
     from tabpar.data.suites import load_suite
     from tabpar.execution.cache import load_arrays, prepare_task

@@ -205,7 +205,7 @@ def test_sklearn_breast_cancer_matches_its_description(wide):
     assert np.bincount(rows.target.values).tolist() == [357, 212]
 
 
-def test_pitch_types_match_the_kershaw_help_page(wide):
+def test_pitch_types_match_their_help_page(wide):
     # Stat2Data's page for `Kershaw`: "`PitchType` Code for pitch type (`CH`=changeup,
     # `CU`=curve, `FF`=fastball, or `SL`=slider)": four classes; the page gives no count per
     # class, so the table is pinned by its documented 3402 pitches

@@ -123,17 +123,25 @@ def plan_jobs(prepared: list[PreparedTask], models: list[str], seeds: list[int],
 
 
 def still_to_run(jobs: list[dict], rows) -> list[dict]:
-    """The jobs without a finished row of the same data: a row counts only when its status is
-    ok and its fingerprint is the job's (a folder whose run.json is gone cannot vouch for old
-    rows, so each row vouches for itself).
+    """The jobs without a finished row of the same data and the same preparing code: a row
+    counts only when its status is ok and its data fingerprint and preparing-code digest are
+    the job's (a folder whose run.json is gone cannot vouch for old rows, so each row vouches
+    for itself; a rerun after a change to loading, splitting or preparing runs every job again,
+    and the new rows win over the old ones).
 
-    >>> job = {"task": "t", "model": "rf", "seed": 0, "fingerprint": "new"}
+    >>> job = {"task": "t", "model": "rf", "seed": 0, "fingerprint": "new", "code": "c1"}
     >>> len(still_to_run([job], [{**job, "status": "ok", "fingerprint": "old"}]))
     1
+    >>> len(still_to_run([job], [{**job, "status": "ok", "code": "c0"}]))
+    1
+    >>> len(still_to_run([job], [{**job, "status": "ok"}]))
+    0
     """
-    done = {(r["task"], r["model"], r["seed"], r.get("fingerprint")) for r in rows
-            if r.get("status") == "ok"}
-    return [j for j in jobs if (j["task"], j["model"], j["seed"], j["fingerprint"]) not in done]
+    def key(item: dict) -> tuple:
+        return item["task"], item["model"], item["seed"], item.get("fingerprint"), item.get("code")
+
+    done = {key(r) for r in rows if r.get("status") == "ok"}
+    return [j for j in jobs if key(j) not in done]
 
 
 def lost_row(job: dict, reason: str, status: str) -> dict:

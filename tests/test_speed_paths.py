@@ -127,14 +127,17 @@ def csv_task(write_suite, tmp_path):
 
 
 def _loads_counted(monkeypatch):
+    # prepare_task imports load_task from the sources module on a miss, so count it there
+    import tabpar.data.sources as sources
+
     calls = []
-    original = cache_module.load_task
+    original = sources.load_task
 
     def counted(task):
         calls.append(task.name)
         return original(task)
 
-    monkeypatch.setattr(cache_module, "load_task", counted)
+    monkeypatch.setattr(sources, "load_task", counted)
     return calls
 
 

@@ -260,6 +260,43 @@ def test_jobs_of_other_preparing_code_are_run_again_and_win(tmp_path, monkeypatc
     assert again.reused == 1  # the new code's row is reused as usual
 
 
+def test_a_reference_rebuilt_in_place_after_a_code_change_publishes_only_new_rows(
+        tmp_path, monkeypatch):
+    import json
+
+    import tabpar.execution.jobs as jobs
+    from tabpar.evaluation.reference import build_reference
+
+    suite, ref = write_suite(tmp_path), tmp_path / "ref"
+    first = build_reference(str(suite), out=ref, seeds=1, workers=1)
+    assert first.ok == first.jobs and (ref / "provenance.json").is_file()
+    monkeypatch.setattr(jobs, "preparation_code_digest", lambda: "0123456789abcdef")
+    again = build_reference(str(suite), out=ref, seeds=1, workers=1, replace=True)
+    assert again.reused == 0 and again.ok == again.jobs
+    rows = _strict_rows(ref / "jobs.jsonl")
+    assert len(rows) == again.jobs and {r["code"] for r in rows} == {"0123456789abcdef"}
+    provenance = json.loads((ref / "provenance.json").read_text())
+    assert provenance["rows_superseded"] == first.jobs and provenance["jobs_reused"] == 0
+
+
+def test_an_interrupted_reference_build_is_not_published(tmp_path, monkeypatch, capsys):
+    import tabpar.evaluation.reference as reference
+
+    real = reference.run_suite
+
+    def cut_short(*args, **kwargs):  # stand-in for Ctrl-C after the first jobs
+        result = real(*args, **{**kwargs, "models": ["naive"]})
+        result.interrupted = True
+        return result
+
+    monkeypatch.setattr(reference, "run_suite", cut_short)
+    out = tmp_path / "ref"
+    code = main(["reference", "build", "--suite", str(write_suite(tmp_path)), "--out", str(out),
+                 "--seeds", "1", "--workers", "1", "--quiet"])
+    assert code == 130 and "to resume the build" in capsys.readouterr().err
+    assert (out / "jobs.jsonl").is_file() and not (out / "provenance.json").exists()
+
+
 def test_a_cache_entry_with_replaced_arrays_is_rebuilt(tmp_path):
     from tabpar.data.suites import load_suite
     from tabpar.execution.cache import load_arrays, prepare_task

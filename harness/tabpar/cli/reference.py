@@ -33,4 +33,8 @@ def reference_build_command(args) -> int:
                              workers=args.workers, progress=progress, replace=args.replace)
     if not args.quiet:
         print(render_run(result))
+    if result.interrupted:  # no provenance.json written: the folder is not a reference yet
+        print(f"tabpar: interrupted; every finished job is saved in {result.out}; run the same "
+              f"command again (without --replace) to resume the build.", file=sys.stderr)
+        return 130
     return 1 if result.failed else 0

@@ -29,6 +29,7 @@ from tabpar.execution.runner import run_suite
 from tabpar.execution.store import (
     RUN_FILE,
     STORE_FORMAT,
+    ResultsStore,
     atomic_write_text,
     load_results,
     read_predictions,
@@ -228,8 +229,11 @@ def build_reference(suite: str = "default", out: str | Path | None = None, seeds
 
     ``out`` is required and must lie outside the installed package (the published references
     in a checkout are rebuilt with ``--out results/reference/SUITE``). Resumable: finished
-    jobs of an interrupted build in ``out`` are kept. A finished reference (one with
-    ``provenance.json``) is only rebuilt in place with ``replace=True``. Returns the RunResult.
+    jobs of an interrupted build in ``out`` are kept, and an interrupted build writes no
+    ``provenance.json`` (it is not a reference until it finishes). A finished reference is
+    only rebuilt in place with ``replace=True``: its ``provenance.json`` is removed first, jobs
+    of the same data and preparing code are reused, and the rows the rebuild superseded are
+    dropped from ``jobs.jsonl``. Returns the RunResult.
     """
     if out is None:
         raise UserError("Say where to write the reference with --out DIR (in a checkout, "
@@ -240,13 +244,24 @@ def build_reference(suite: str = "default", out: str | Path | None = None, seeds
         raise UserError(f"{out} already holds a finished reference; pass --replace to rebuild "
                         f"it there (its jobs are reused where nothing changed), or choose "
                         f"another --out.")
+    if replace:  # until the rebuild finishes, the folder is not a finished reference
+        (out / "provenance.json").unlink(missing_ok=True)
     started = time.monotonic()
     result = run_suite(suite=suite, seeds=seeds, out=out, workers=workers, progress=progress)
+    if result.interrupted:
+        return result  # no provenance: the folder stays a build to resume
+    store = ResultsStore(out)
+    store.open_for_writing()
+    try:  # rows a rebuild superseded (other preparing code, a failed try) are not published
+        superseded = store.compact()
+    finally:
+        store.close()
     frame = load_results(out)
     provenance = {
         # wall time of this invocation; a resumed build adds the jobs it reused from before
         "build_seconds": round(time.monotonic() - started),
         "jobs_reused": int(result.reused),
+        "rows_superseded": superseded,
         "command": command or " ".join(["tabpar"] + sys.argv[1:]),
         "created_at": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "suite": result.suite, "seeds": seeds, "cores": available_cores(),

@@ -179,6 +179,22 @@ class ResultsStore:
                             f"({exc.strerror}); free disk space and run again with the same "
                             f"--out (finished jobs are kept).") from None
 
+    def compact(self) -> int:
+        """Keep only the latest row of each (task, model, seed), as every reader counts them,
+        and return how many superseded rows were dropped (for a published reference rebuilt in
+        place, whose old rows would otherwise travel with it). Needs the folder's lock."""
+        if self._lock_handle is None:
+            raise RuntimeError("compact() needs open_for_writing() first")
+        rows = self.rows()
+        latest = {(r["task"], r["model"], r["seed"]): r for r in rows}
+        dropped = len(rows) - len(latest)
+        if dropped:
+            text = "".join(json.dumps(r, sort_keys=True, default=_json_default,
+                                      allow_nan=False) + "\n" for r in latest.values())
+            atomic_write_text(self.jobs_path, text,
+                              fix="free disk space and build again with the same --out")
+        return dropped
+
     # --- predictions ------------------------------------------------------------------
     def predictions_path(self, task: str, model: str, seed: int) -> Path:
         return self.folder / "predictions" / task / f"{model}-seed{seed}.parquet"

@@ -192,7 +192,9 @@ class ZooRun:
         self.ratios, self.overhead = [], 0.0
         self.have_ensemble, self.stopped, self.rate_used = False, False, False
 
-    def predicted(self, model, target="job"):
+    def predicted(self, model, target="job") -> float:
+        """The references' predicted seconds of one ``model`` job (or ``target="fit"``: its
+        fit alone) at this task's size, before any scaling to this machine."""
         return predict_seconds(model, self.kind, *self.sizes, threads=self.threads,
                                target=target)
 

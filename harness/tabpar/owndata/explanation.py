@@ -49,7 +49,8 @@ def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnos
         The verdict first, then one sentence per finding worth a look.
     """
     d = {x.name: x for x in diagnostics}
-    # a suspected leak comes first: every number after it may be inflated by that column
+    # a suspected leak comes first (or, before the diagnostics, that none has been looked for):
+    # every number after it may be inflated by that column
     leads = [_diagnostics_pending_note(diagnostics_pending),
              leakage_headline(d.get("leakage")), _provisional_note(ensembles, p, pending),
              _verdict(p, dataset, percentile, par_gain_share, n_holdout, tolerance)]

@@ -8,9 +8,12 @@ The target is a noisy non-linear function of a few columns, so there is somethin
     python bench/calibrate_speed.py                    # regression, the default zoo, 1 seed
     python bench/calibrate_speed.py --type binary
 
-Runs the console script once, as a user would (imports and all), and prints the wall time, the
-machine (cores, memory) and the library versions, plus the per-phase times from report.json.
-Run it on an otherwise idle machine; the figure goes into bench/RESULTS.md under "calibrate".
+Runs the console script once, as a user would (imports and all), with --json, which prints one
+JSON object per answer as it comes; prints the seconds from the start to the provisional answer
+(the naive floor and the histogram boosters) and to the final one, the wall time, the load
+average (os.getloadavg) before and after, the machine (cores, memory) and the library versions,
+plus the per-phase times from the final answer. Run it on an otherwise idle machine; the
+figures go into bench/RESULTS.md under "calibrate".
 """
 from __future__ import annotations
 
@@ -97,15 +100,35 @@ def main() -> int:
     command = launcher + ["calibrate", str(data), "--target", "target",
                "--date", "opened", "--score", score, "--seeds", "1", "--out", str(out), "--json"]
     env = dict(os.environ, TABPAR_CACHE=str(work / "cache"))  # a cold cache, as a first run
-    t0 = time.perf_counter()
-    done = subprocess.run(command, env=env, capture_output=True, text=True)
-    seconds = time.perf_counter() - t0
-    if done.returncode != 0:
-        print(done.stderr, file=sys.stderr)
-        return done.returncode
-    report = json.loads(done.stdout)
+    load_before = os.getloadavg()
+    answers = []  # (seconds from the start, answer) as each line arrives
+    with open(work / "stderr.txt", "w+") as stderr:
+        t0 = time.perf_counter()
+        with subprocess.Popen(command, env=env, stdout=subprocess.PIPE, stderr=stderr,
+                              text=True) as process:
+            for line in process.stdout:
+                answers.append((time.perf_counter() - t0, json.loads(line)))
+        seconds = time.perf_counter() - t0
+        if process.returncode != 0:
+            stderr.seek(0)
+            print(stderr.read(), file=sys.stderr)
+            return process.returncode
+    load_after = os.getloadavg()
+    report = answers[-1][1]
+    assert report["final"] is True, "the last answer must be the final one"
     print(f"tabpar calibrate, synthetic {args.type} table of {args.rows:,} rows x 30 columns, "
           f"time holdout, the default zoo, 1 seed: {seconds:.1f} s wall")
+    for at, answer in answers:
+        kind = "final" if answer["final"] else "provisional"
+        print(f"  {kind} answer at {at:.1f} s: rests on {', '.join(answer['rests_on'])}"
+              + (f"; pending {', '.join(answer['pending'])} and "
+                 f"{len(answer['diagnostics_pending'])} diagnostics"
+                 if not answer["final"] else "")
+              + f" (verdict {answer['score_verdict']}, par {answer['par']:.4g}, "
+                f"best {answer['best']:.4g})")
+    print("  load average (1, 5, 15 min) before: "
+          + ", ".join(f"{x:.2f}" for x in load_before)
+          + "; after: " + ", ".join(f"{x:.2f}" for x in load_after))
     print(f"  split: {report['split']}")
     print("  diagnostics: " + ", ".join(f"{d['name']} {d['seconds']:.1f} s"
                                         for d in report["diagnostics"]))

@@ -149,7 +149,12 @@ def test_leak_column_is_flagged_by_name_through_the_cli(files, tmp_path, capsys)
     code = main(["calibrate", str(files["leak"]), "--target", "compressive_strength",
                  "--score", "6.0", "--models", ",".join(FAST), "--out", str(out), "--json"])
     assert code == 0
-    answer = json.loads(capsys.readouterr().out)
+    # one JSON object per answer: the provisional one (naive and lgbm), then the final one
+    provisional, answer = map(json.loads, capsys.readouterr().out.splitlines())
+    assert provisional["final"] is False and answer["final"] is True
+    # the provisional answer came before any leak check, and says so instead of naming none
+    assert provisional["diagnostics"] == []
+    assert "No leak check has finished yet" in provisional["answer"]
     leak = {d["name"]: d for d in answer["diagnostics"]}["leakage"]
     assert leak["flag"] is True
     assert leak["numbers"]["suspects"] == ["lab_check"]

@@ -16,7 +16,11 @@ def add_parser(subparsers) -> None:
                     "the suite's tasks, and run diagnostics (leakage, shift, split-optimism, "
                     "learning-curve, conflicting-duplicates) that tell a pipeline mistake from "
                     "a hard dataset. Options left out are inferred and the output says what "
-                    "was inferred.",
+                    "was inferred. A provisional answer comes first, once the naive floor "
+                    "and the histogram boosters (hgb, xgb, lgbm) have run: labelled with the "
+                    "models it rests on and what is still running; the final answer follows "
+                    "when the whole zoo and the diagnostics have finished, and only it sets "
+                    "the exit code.",
         epilog="First time: --export-split DIR writes train.csv (with the target) and "
                "holdout.csv (without), both with row_id (the row's 0-based position in DATA); "
                "predict holdout.csv and pass the file with --predictions.")
@@ -39,7 +43,10 @@ def add_parser(subparsers) -> None:
     cal.add_argument("--out", default=None,
                      help="output folder (default: runs/calibrate-NAME-DATE-TIME)")
     options.add_reference(cal, "suite reference whose tasks the difficulty is placed among")
-    options.add_json(cal)
+    options.add_json(cal, "print one JSON object per line per answer (JSON Lines): the "
+                          "provisional one with \"final\": false, the last with \"final\": "
+                          "true; each lists the models it \"rests_on\" and those still "
+                          "\"pending\"")
     options.add_executor_options(cal)
     cal.set_defaults(func=calibrate_command)
 
@@ -91,10 +98,22 @@ def calibrate_command(args) -> int:
         return 0
     progress = not args.json and sys.stderr.isatty()
     say = (lambda m: print(f"  {m}", file=sys.stderr)) if progress else None
+    shown = []
+
+    def show(update) -> None:
+        """Print a provisional answer at once; the final one waits for its plots."""
+        if not update.final:
+            shown.append(update)
+            print(json.dumps(update.to_dict()) if args.json else f"{update}\n", flush=True)
+
     result = calibrate(args.data, args.target, score=args.score, predictions=args.predictions,
                        seeds=args.seeds, models=args.models, budget=args.budget, out=args.out,
-                       reference=args.reference or reference_for(), on_event=say, executor=args.executor,
-                       scheduler=args.scheduler, **table)
+                       reference=args.reference or reference_for(), on_event=say,
+                       on_update=show, executor=args.executor, scheduler=args.scheduler,
+                       **table)
     save_calibration_plots(result, result.out)
-    print(json.dumps(result.to_dict(), indent=2) if args.json else result)
-    return 0
+    if args.json:
+        print(json.dumps(result.to_dict()))
+    else:
+        print(f"Final (rests on {', '.join(result.rests_on)}):\n{result}" if shown else result)
+    return 0  # the final answer's: a provisional one never ends the command

@@ -16,7 +16,7 @@ from tabpar.data.suites import Task
 from tabpar.evaluation.placement import Placement
 from tabpar.evaluation.probes import findings_lines
 from tabpar.execution.provenance import library_versions
-from tabpar.models.zoo import DEFAULT_ENSEMBLES
+from tabpar.models.zoo import DEFAULT_ENSEMBLES, MODELS
 from tabpar.owndata.difficulty import EASY_PERCENTILE, HARD_PERCENTILE
 from tabpar.owndata.explanation import (
     leakage_headline,
@@ -85,6 +85,11 @@ class Calibration:
     budget_seconds: float | None = None
     elapsed_seconds: float = 0.0
     files: dict = field(default_factory=dict)
+    # an answer given before the whole zoo and the diagnostics have run is not final: it
+    # rests on the models in ``baseline``; ``pending`` models and diagnostics are still running
+    final: bool = True
+    pending: list = field(default_factory=list)
+    diagnostics_pending: list = field(default_factory=list)
 
     def to_dict(self) -> dict:
         """JSON-safe: numbers that are not finite become None."""
@@ -107,6 +112,8 @@ class Calibration:
             "skipped": self.skipped, "failures": self.failures, "warnings": self.warnings,
             "budget_seconds": self.budget_seconds, "elapsed_seconds": self.elapsed_seconds,
             "files": self.files, "findings": [f.to_dict() for f in p.findings],
+            "final": self.final, "rests_on": self.rests_on, "pending": self.pending,
+            "diagnostics_pending": self.diagnostics_pending,
         }, default=str)))
 
     @property
@@ -115,11 +122,23 @@ class Calibration:
         return [m for m in DEFAULT_ENSEMBLES if m in self.baseline]
 
     @property
+    def rests_on(self) -> list[str]:
+        """Every model the answer rests on (the naive floor first, then cheapest first)."""
+        return sorted(self.baseline, key=lambda m: MODELS[m].cost(self.task.type))
+
+    @property
     def provisional(self) -> bool:
         """True when the verdict rests on fewer than every default ensemble (and could change
-        once they run); worse-than-naive never depends on them."""
+        once they run, or once the missing ones are run); worse-than-naive never depends on
+        them. An answer that is not ``final`` says so apart (its ``pending`` models)."""
         return (bool(missing_ensembles(self.ensembles_run))
                 and self.score_verdict != "worse-than-naive")
+
+    def still_running(self) -> str:
+        """What a non-final answer waits for, in words: "rf, et and the 5 diagnostics"."""
+        parts = list(self.pending) + ([f"the {len(self.diagnostics_pending)} diagnostics"]
+                                      if self.diagnostics_pending else [])
+        return (", ".join(parts[:-1]) + " and " + parts[-1]) if len(parts) > 1 else "".join(parts)
 
     def diagnostic(self, name: str):
         """The ``Diagnostic`` called ``name`` (e.g. ``"learning-curve"``), or None."""
@@ -160,13 +179,45 @@ class Calibration:
                          f"{s['estimate_seconds']:.0f} s)")
         return lines
 
-    def __str__(self) -> str:
+    def _placement_lines(self) -> list[str]:
+        """The verdict, its numbers and the dataset's difficulty."""
         p = self.placement
-        direction = "lower is better" if p.lower_is_better else "higher is better"
         gain_share = "n/a" if self.gain_share is None else f"{self.gain_share:.2f}"
         par = "" if self.par_gain_share is None else f" (par's gain share {self.par_gain_share:.2f})"
         pct = ("n/a" if self.difficulty_percentile is None
                else f"{self.difficulty_percentile:.0f}")
+        return [f"score {fmt(p.score)}  →  {self.score_verdict}" + (
+                    f" (provisional: rests on {len(self.ensembles_run)} of "
+                    f"{len(DEFAULT_ENSEMBLES)} default ensembles)" if self.provisional else ""),
+                f"  gain share {gain_share}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
+                f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
+                *findings_lines(p.findings),
+                f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
+                f"best default takes), "
+                + (f"percentile {pct} among the {self.suite_tasks} tasks of the "
+                   f"{_reference_name(self.suite_reference)} (hard ≥ {HARD_PERCENTILE:.0f}, easy ≤ {EASY_PERCENTILE:.0f})"
+                   if self.suite_tasks else "no suite reference to place it against")]
+
+    def _provisional_text(self) -> str:
+        """A non-final answer: labelled with what it rests on and what is still running."""
+        lines = [f"Provisional (rests on {', '.join(self.rests_on)}; {self.still_running()} "
+                 f"still running):"]
+        lines += self._placement_lines()
+        lines += ["", f"baseline on your split so far ({self.seeds} seed"
+                      f"{'s' if self.seeds > 1 else ''} per model):"]
+        lines += self._baseline_lines()
+        lines += [f"  {m:<8} {'running':>12}" for m in self.pending]
+        if self.diagnostics_pending:
+            lines += ["", f"diagnostics: still running ({', '.join(self.diagnostics_pending)})"]
+        lines += ["", f"answer: {self.answer}"]
+        lines += [f"caution: {w}" for w in self.warnings]
+        return "\n".join(lines)
+
+    def __str__(self) -> str:
+        if not self.final:
+            return self._provisional_text()
+        p = self.placement
+        direction = "lower is better" if p.lower_is_better else "higher is better"
         lines = [f"tabpar calibrate — {Path(self.data).name}, target '{self.task.target}' "
                  f"({self.task.type}, {p.metric}: {direction})",
                  "inferred (check these):" + (" nothing, every option was given"
@@ -178,18 +229,8 @@ class Calibration:
         leak = leakage_headline(self.diagnostic("leakage"))
         if leak:
             lines += [f"[!] {leak}"]
-        lines += [f"score {fmt(p.score)}  →  {self.score_verdict}" + (
-                      f" (provisional: rests on {len(self.ensembles_run)} of "
-                      f"{len(DEFAULT_ENSEMBLES)} default ensembles)" if self.provisional else ""),
-                  f"  gain share {gain_share}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
-                  f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
-                  *findings_lines(p.findings),
-                  f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
-                  f"best default takes), "
-                  + (f"percentile {pct} among the {self.suite_tasks} tasks of the "
-                     f"{_reference_name(self.suite_reference)} (hard ≥ {HARD_PERCENTILE:.0f}, easy ≤ {EASY_PERCENTILE:.0f})"
-                     if self.suite_tasks else "no suite reference to place it against"),
-                  "",
+        lines += self._placement_lines()
+        lines += ["",
                   f"baseline on your split ({self.seeds} seed{'s' if self.seeds > 1 else ''} "
                   f"per model; the suite's procedure):"]
         lines += self._baseline_lines()

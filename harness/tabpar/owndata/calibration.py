@@ -1,13 +1,14 @@
 """Calibrate a score on one's own data (``tabpar calibrate``): the steps in order.
 
 The user's table becomes a ``Task`` (``tabpar.owndata.inference``) in a one-task ``Suite``; the
-diagnostics (``tabpar.owndata.diagnostics``) run on its split; the model zoo runs on it through
-``run_suite`` (one call per model, cheapest first, within an optional time budget:
-``tabpar.owndata.budget``) into ``OUT/run``; the user's score is placed against that run with
-``place_task``, the task's difficulty is placed among the published default reference's tasks
-(``tabpar.owndata.difficulty``), and the answer (``tabpar.owndata.answer``) says which
-explanation — the pipeline or the data — the evidence supports. The plots are drawn later, from
-the ``Calibration``, by ``tabpar.report.learning_curve.save_calibration_plots``.
+model zoo runs on it through ``run_suite`` (one call per model, cheapest first, within an
+optional time budget: ``tabpar.owndata.budget``) into ``OUT/run``, in two stretches: the naive
+floor and the histogram boosters, then (after a provisional answer on them) the diagnostics
+(``tabpar.owndata.diagnostics``) and the other models; the user's score is placed against that
+run with ``place_task``, the task's difficulty is placed among the published default
+reference's tasks (``tabpar.owndata.difficulty``), and the answer (``tabpar.owndata.answer``)
+says which explanation — the pipeline or the data — the evidence supports. The plots are drawn
+later, from the ``Calibration``, by ``tabpar.report.learning_curve.save_calibration_plots``.
 """
 from __future__ import annotations
 
@@ -17,6 +18,7 @@ import os
 import signal
 import threading
 import time
+from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
 
@@ -35,7 +37,14 @@ from tabpar.execution.cache import load_arrays, prepare_task
 from tabpar.execution.executors import connect_check
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 from tabpar.owndata.answer import Calibration
-from tabpar.owndata.budget import reserve_seconds, run_zoo, seconds_per_cost, zoo_order
+from tabpar.owndata.budget import (
+    ZooRun,
+    reserve_seconds,
+    seconds_per_cost,
+    stretches,
+    zoo_order,
+)
+from tabpar.owndata.diagnostics import NAMES as DIAGNOSTIC_NAMES
 from tabpar.owndata.diagnostics import run_diagnostics, task_data
 from tabpar.owndata.difficulty import dataset_label, suite_difficulties
 from tabpar.owndata.explanation import compose_answer
@@ -50,12 +59,14 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
               cutoff: str | None = None, drop=(), score: float | None = None,
               predictions=None, seeds: int = 1, models=None, budget: float | None = None,
               out=None, workers: int | None = None, reference: str = "default",
-              tolerance: float = DEFAULT_TOLERANCE, on_event=None, executor: str = "local",
-              scheduler: str | None = None) -> Calibration:
+              tolerance: float = DEFAULT_TOLERANCE, on_event=None, on_update=None,
+              executor: str = "local", scheduler: str | None = None) -> Calibration:
     """Place ``score`` (or a ``predictions`` file: columns row_id, prediction) on the user's own
     table against the baseline procedure and zoo run on the same split.
 
-    Writes ``OUT/run`` (the zoo's jobs), ``report.md`` and ``report.json`` (default OUT:
+    The zoo runs in two stretches: the naive floor and the histogram boosters first (a
+    provisional answer on them goes to ``on_update``), then the diagnostics and the other
+    models. Writes ``OUT/run`` (the zoo's jobs), ``report.md`` and ``report.json`` (default OUT:
     ``runs/calibrate-NAME-DATE-TIME``); the plots are drawn from the result by
     ``tabpar.report.learning_curve.save_calibration_plots``. Every mistake in the input raises
     UserError before anything is written. ``executor="dask"`` runs the zoo's jobs on the Dask
@@ -94,6 +105,15 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         Gain share (0 = naive floor, 1 = best default) within which a score counts as at par.
     on_event : callable, optional
         Takes one progress message per step.
+    on_update : callable, optional
+        Takes each answer as it comes: first a provisional ``Calibration`` (``final`` False)
+        once the naive floor and the histogram boosters (hgb, xgb, lgbm: seconds where the
+        forests take minutes) have run, resting on them (``rests_on``) with the models still
+        to run in ``pending`` and every diagnostic in ``diagnostics_pending``; then the final
+        one (``final`` True), the one returned. No provisional answer when none of the
+        boosters ran (``models`` without them, or they all failed). A provisional answer
+        writes no report; its verdict is labelled provisional and hedged like one resting
+        on fewer ensembles (best can only improve, par can move either way).
     executor, scheduler : str
         ``"local"`` or ``"dask"``, and the Dask scheduler's address.
 
@@ -144,54 +164,113 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
             raise UserError(f"{out} holds a calibration of other data or options; choose "
                             f"another --out.")
 
-    data_ = task_data(task, threads=cores)
-    diagnostics = run_diagnostics(data_, on_event=say)
-    curve = next(d for d in diagnostics if d.name == "learning-curve")
-    rate = seconds_per_cost(curve.numbers.get("fit_seconds"), task.type)
-    zoo_budget = None
-    if budget is not None:  # keep time for the placement's bootstrap and the plots
-        zoo_budget = budget - reserve_seconds(data_)
     suite = Suite(name=SUITE_NAME, path=Path(task.source.split(":", 1)[1]),
                   description="tabpar calibrate on the user's own data", tasks=[task])
     run_dir = out / "run"
-    with _sigterm_as_interrupt():
-        ran, skipped, failures, overrun = run_zoo(suite, order, seeds, run_dir, workers,
-                                                  zoo_budget, started, rate, say,
-                                                  executor=executor, scheduler=scheduler)
-    ensembles = [m for m in ran if m in DEFAULT_ENSEMBLES]
-    if "naive" not in ran or not ensembles:
-        raise RuntimeError(f"the naive floor or every default ensemble failed on {task.name}: "
-                           f"{failures}")
+    zoo_budget = None
+    if budget is not None:  # keep time for the placement's bootstrap and the plots
+        arrays = load_arrays(prepared.folder)
+        zoo_budget = budget - reserve_seconds(task.type, get_metric(task.metric),
+                                              arrays["y_train"], arrays["y_holdout"],
+                                              max(len(prepared.classes), 2))
+    zoo = ZooRun(suite, seeds, run_dir, workers, started, say, executor=executor,
+                 scheduler=scheduler)
+    first, rest = stretches(order)
 
-    ref = Reference(run_dir)
-    placement = place_task(task, ref, score=score, predictions=predictions,
-                           tolerance=tolerance, difficulties=difficulties)
+    setting = _Setting(str(data), task, inferred, prepared, out, run_dir, score, predictions,
+                       tolerance, seeds, budget, zoo_budget, started, difficulties,
+                       suite_folder, suite_note)
+
+    def answer(diagnostics, pending=(), final=True) -> Calibration:
+        return _answer(setting, zoo, diagnostics, [m for m in order if m in pending], final)
+
+    with _sigterm_as_interrupt():  # Ctrl-C or SIGTERM: exit 130, whatever was answered so far
+        # the first stretch takes seconds: naive and the histogram boosters, then an answer
+        # on them; the diagnostics and the slow models refine it
+        deferred = zoo.run(first, zoo_budget, defer=True)
+        if on_update is not None and "naive" in zoo.ran and _ensembles(zoo.ran):
+            say("provisional answer")
+            on_update(answer([], pending=deferred + rest, final=False))
+        data_ = task_data(task, threads=cores)
+        diagnostics = run_diagnostics(data_, on_event=say)
+        curve = next(d for d in diagnostics if d.name == "learning-curve")
+        rate = seconds_per_cost(curve.numbers.get("fit_seconds"), task.type)
+        zoo.run([m for m in order if m in deferred + rest], zoo_budget, rate)
+    if "naive" not in zoo.ran or not _ensembles(zoo.ran):
+        raise RuntimeError(f"the naive floor or every default ensemble failed on {task.name}: "
+                           f"{zoo.failures}")
+    calibration = answer(diagnostics)
+    calibration.write_reports()
+    if on_update is not None:
+        on_update(calibration)
+    return calibration
+
+
+def _ensembles(models) -> list[str]:
+    return [m for m in models if m in DEFAULT_ENSEMBLES]
+
+
+@dataclass
+class _Setting:
+    """What every answer of one ``calibrate`` call shares: the data, the split, the options."""
+
+    data: str
+    task: object
+    inferred: dict
+    prepared: object  # PreparedTask
+    out: Path
+    run_dir: Path
+    score: float | None
+    predictions: object
+    tolerance: float
+    seeds: int
+    budget: float | None
+    zoo_budget: float | None
+    started: float
+    difficulties: dict | None
+    suite_folder: object
+    suite_note: str
+
+
+def _answer(s: _Setting, zoo: ZooRun, diagnostics: list, pending: list,
+            final: bool) -> Calibration:
+    """The answer on the models ``zoo`` has run so far and the ``diagnostics`` done; not
+    ``final`` while ``pending`` models or the diagnostics are still to run."""
+    task, prepared = s.task, s.prepared
+    ref = Reference(s.run_dir)
+    placement = place_task(task, ref, score=s.score, predictions=s.predictions,
+                           tolerance=s.tolerance, difficulties=s.difficulties)
     tref = ref.task(task.name)
     metric_obj = get_metric(task.metric)
     gain_best = float(metric_obj.gain(tref.best, tref.naive))
     par_gain_share = (float(metric_obj.gain(tref.par, tref.naive)) / gain_best
-                 if placement.gain_share is not None else None)
+                      if placement.gain_share is not None else None)
     dataset = dataset_label(placement.difficulty_percentile)
+    ensembles = _ensembles(zoo.ran)
+    diagnostics_pending = [] if final else list(DIAGNOSTIC_NAMES)
     answer = compose_answer(placement, dataset, placement.difficulty_percentile, diagnostics,
-                            par_gain_share, prepared.n_holdout, ensembles, tolerance)
-    warnings = _cautions(suite_note, ensembles, seeds, budget, time.monotonic() - started,
-                         overrun, failures)
-
+                            par_gain_share, prepared.n_holdout, ensembles, s.tolerance,
+                            pending=pending, diagnostics_pending=diagnostics_pending)
+    elapsed = time.monotonic() - s.started
+    warnings = _cautions(s.suite_note, ensembles, s.seeds, s.budget, elapsed,
+                         zoo.overrun(s.zoo_budget), zoo.failures)
     calibration = Calibration(
-        data=str(data), task=task, out=out, inferred=inferred,
+        data=s.data, task=task, out=s.out, inferred=s.inferred,
         split=prepared.split_description, notes=list(prepared.notes), placement=placement,
         score_verdict=placement.verdict, dataset=dataset, difficulty=float(tref.difficulty),
-        difficulty_percentile=placement.difficulty_percentile, suite_reference=suite_folder,
-        suite_tasks=len(difficulties or {}), gain_share=placement.gain_share, par_gain_share=par_gain_share,
-        baseline=_baseline(ref, task.name), diagnostics=diagnostics, answer=answer,
-        n_holdout=prepared.n_holdout, n_train=prepared.n_train, seeds=seeds, skipped=skipped,
-        failures=failures, warnings=warnings, budget_seconds=budget,
-        given=(["--predictions", str(predictions)] if predictions is not None
-               else ["--score", repr(float(score))]))
-    calibration.files = {"report": str(out / "report.md"), "json": str(out / "report.json"),
-                         "run": str(run_dir)}
-    calibration.elapsed_seconds = round(time.monotonic() - started, 1)
-    calibration.write_reports()
+        difficulty_percentile=placement.difficulty_percentile, suite_reference=s.suite_folder,
+        suite_tasks=len(s.difficulties or {}), gain_share=placement.gain_share,
+        par_gain_share=par_gain_share, baseline=_baseline(ref, task.name),
+        diagnostics=diagnostics, answer=answer, n_holdout=prepared.n_holdout,
+        n_train=prepared.n_train, seeds=s.seeds, skipped=list(zoo.skipped),
+        failures=list(zoo.failures), warnings=warnings, budget_seconds=s.budget,
+        given=(["--predictions", str(s.predictions)] if s.predictions is not None
+               else ["--score", repr(float(s.score))]),
+        final=final, pending=pending, diagnostics_pending=diagnostics_pending)
+    if final:
+        calibration.files = {"report": str(s.out / "report.md"),
+                             "json": str(s.out / "report.json"), "run": str(s.run_dir)}
+    calibration.elapsed_seconds = round(elapsed, 1)
     return calibration
 
 

@@ -1,7 +1,8 @@
 """The answer paragraph of ``calibrate``: is a weak score more likely the pipeline's or the
 data's, from the placement, the dataset's difficulty among the reference's tasks and the
-diagnostics. A suspected leak leads, then whether the verdict is provisional (fewer than every
-default ensemble ran), then the verdict and one sentence per finding worth a look.
+diagnostics. Diagnostics still running lead (a provisional answer, before them), then a
+suspected leak, then whether the verdict is provisional (fewer than every default ensemble
+ran, or some still running), then the verdict and one sentence per finding worth a look.
 """
 from __future__ import annotations
 
@@ -12,7 +13,8 @@ from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
 def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnostics: list,
                    par_gain_share: float | None, n_holdout: int, ensembles: list,
-                   tolerance: float = DEFAULT_TOLERANCE) -> str:
+                   tolerance: float = DEFAULT_TOLERANCE, pending=(),
+                   diagnostics_pending=()) -> str:
     """One paragraph: is a weak score more likely the pipeline's or the data's, with numbers.
 
     Claims only differences outside the noise band; says so when the evidence is inconclusive.
@@ -35,6 +37,11 @@ def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnos
         The default ensembles that ran.
     tolerance : float
         The placement's tolerance (gain-share units) for calling a score under par.
+    pending : list of str
+        Models still running (a provisional answer, before the whole zoo has run).
+    diagnostics_pending : list of str
+        Diagnostics still running: the answer then says so first, as no leak check has
+        finished (it never reads as "no leak found").
 
     Returns
     -------
@@ -42,8 +49,10 @@ def compose_answer(p: Placement, dataset: str, percentile: float | None, diagnos
         The verdict first, then one sentence per finding worth a look.
     """
     d = {x.name: x for x in diagnostics}
-    # a suspected leak comes first: every number after it may be inflated by that column
-    leads = [leakage_headline(d.get("leakage")), _provisional_note(ensembles, p),
+    # a suspected leak comes first (or, before the diagnostics, that none has been looked for):
+    # every number after it may be inflated by that column
+    leads = [_diagnostics_pending_note(diagnostics_pending),
+             leakage_headline(d.get("leakage")), _provisional_note(ensembles, p, pending),
              _verdict(p, dataset, percentile, par_gain_share, n_holdout, tolerance)]
     notes = [_shift_note(d.get("shift")), _optimism_note(d.get("split-optimism")),
              _learning_curve_note(d.get("learning-curve"), p),
@@ -125,7 +134,7 @@ def missing_ensembles(ensembles) -> list[str]:
     return [m for m in DEFAULT_ENSEMBLES if m not in ensembles]
 
 
-def _provisional_note(ensembles: list, p: Placement) -> str | None:
+def _provisional_note(ensembles: list, p: Placement, pending=()) -> str | None:
     """Par and best are defined over every default ensemble: a verdict on fewer is provisional
     (except worse-than-naive, which does not depend on them)."""
     missing = missing_ensembles(ensembles)
@@ -136,12 +145,30 @@ def _provisional_note(ensembles: list, p: Placement) -> str | None:
         "below-baseline": "the gap to par may shrink or grow",
         "at-baseline": "the score could turn out below par",
     }[p.verdict]
+    running = [m for m in missing if m in pending]
+    absent = [m for m in missing if m not in pending]
+    why = " and ".join(
+        ([f"{', '.join(running)} {'is' if len(running) == 1 else 'are'} still running"]
+         if running else [])
+        + ([f"{', '.join(absent)} did not run"] if absent else []))
+    then = ("the final answer follows when they finish" if running else
+            "run without --budget (or with every model) for the final verdict")
     return (f"Provisional: this verdict rests on {len(ensembles)} of the "
             f"{len(DEFAULT_ENSEMBLES)} default ensembles ({', '.join(ensembles)}); "
-            f"{', '.join(missing)} did not run. Par and best are defined over all "
+            f"{why}. Par and best are defined over all "
             f"{len(DEFAULT_ENSEMBLES)}: with the others best can only improve and par can move "
-            f"either way, so {consequence}; run without --budget (or with every model) for the "
-            f"final verdict.")
+            f"either way, so {consequence}; {then}.")
+
+
+def _diagnostics_pending_note(names) -> str | None:
+    """Before the diagnostics have run, the answer must not read as if none found anything
+    (a leak above all, which would inflate the baseline and every verdict against it)."""
+    if not names:
+        return None
+    leak = (" No leak check has finished yet: a column that leaks the target would inflate "
+            "the baseline and this verdict." if "leakage" in names else "")
+    return (f"Diagnostics still running ({', '.join(names)}); the final answer adds what they "
+            f"find.{leak}")
 
 
 def _shift_note(sh) -> str | None:

@@ -9,8 +9,10 @@ from tabpar.owndata.diagnostics.shift import shift
 from tabpar.owndata.diagnostics.split_optimism import split_optimism
 
 ALL = (leakage, shift, split_optimism, learning_curve, conflicting_duplicates)
+# the names their answers carry (``Diagnostic.name``), in the order of ``ALL``
+NAMES = ("leakage", "shift", "split-optimism", "learning-curve", "conflicting-duplicates")
 
-__all__ = ["ALL", "Diagnostic", "TaskData", "conflicting_duplicates", "leakage",
+__all__ = ["ALL", "NAMES", "Diagnostic", "TaskData", "conflicting_duplicates", "leakage",
            "learning_curve", "run_diagnostics", "shift", "split_optimism", "task_data"]
 
 

@@ -5,9 +5,9 @@ model zoo runs on it through ``run_suite`` (one call per model, cheapest first, 
 optional time budget: ``tabpar.owndata.budget``) into ``OUT/run``, in two stretches: the naive
 floor and the histogram boosters, then (after a provisional answer on them) the diagnostics
 (``tabpar.owndata.diagnostics``) and the other models; the user's score is placed against that
-run with ``place_task``, the task's difficulty is placed among the published default
-reference's tasks (``tabpar.owndata.difficulty``), and the answer (``tabpar.owndata.answer``)
-says which explanation — the pipeline or the data — the evidence supports. The plots are drawn
+run with ``place_task``, the task's difficulty is placed among the widest published
+reference's tasks of its type (``tabpar.owndata.difficulty``), and the answer
+(``tabpar.owndata.answer``) says which explanation — the pipeline or the data — the evidence supports. The plots are drawn
 later, from the ``Calibration``, by ``tabpar.report.learning_curve.save_calibration_plots``.
 """
 from __future__ import annotations
@@ -32,7 +32,7 @@ from tabpar.common.text import plain
 from tabpar.data.suites import Suite
 from tabpar.evaluation.placement import DEFAULT_TOLERANCE, place_task
 from tabpar.evaluation.predictions import read_predictions_file
-from tabpar.evaluation.reference import Reference
+from tabpar.evaluation.reference import Reference, reference_for
 from tabpar.execution.cache import load_arrays, prepare_task
 from tabpar.execution.executors import connect_check
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
@@ -58,7 +58,7 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
               holdout_fraction: float | None = None, holdout_rows: int | None = None,
               cutoff: str | None = None, drop=(), score: float | None = None,
               predictions=None, seeds: int = 1, models=None, budget: float | None = None,
-              out=None, workers: int | None = None, reference: str = "default",
+              out=None, workers: int | None = None, reference: str | None = None,
               tolerance: float = DEFAULT_TOLERANCE, on_event=None, on_update=None,
               executor: str = "local", scheduler: str | None = None) -> Calibration:
     """Place ``score`` (or a ``predictions`` file: columns row_id, prediction) on the user's own
@@ -99,8 +99,10 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         The output folder.
     workers : int, optional
         Parallel jobs (default: 1 for one seed, else up to one per seed).
-    reference : str
-        The published reference whose tasks the difficulty is placed among.
+    reference : str, optional
+        The published reference whose tasks (of the same type) the difficulty is placed
+        among; default: the widest published one (``reference_for``: ``wide``, else
+        ``default``), as on the command line.
     tolerance : float
         Gain share (0 = naive floor, 1 = best default) within which a score counts as at par.
     on_event : callable, optional
@@ -154,7 +156,8 @@ def calibrate(data, target: str, type: str | None = None, metric: str | None = N
         row_id = np.asarray(load_arrays(prepared.folder)["row_id"])
         read_predictions_file(Path(predictions), row_id, task.type, task.name,
                               classes=prepared.classes)
-    difficulties, suite_folder, suite_note = suite_difficulties(reference, task.type)
+    difficulties, suite_folder, suite_note = suite_difficulties(reference or reference_for(),
+                                                                task.type)
     out = Path(out) if out is not None else (
         Path("runs") / f"calibrate-{task.name}-{datetime.now():%Y%m%d-%H%M%S}")
     if os.path.lexists(out / "report.json"):

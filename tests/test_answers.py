@@ -312,3 +312,20 @@ def test_calibrate_baseline_table_shares_one_number_of_decimals():
                                                 "fit_seconds": 1.2}}, skipped=[])
     rows = [line.split() for line in Calibration._baseline_lines(result)[1:]]
     assert [r[1] for r in rows] == ["7.99", "23.20"]
+
+
+# --- a typed-in score far past the best default ---------------------------------------------
+
+def test_a_typed_in_score_far_beyond_the_best_is_questioned():
+    import tabpar
+
+    # an RMSLE of 0.001 on diamonds: within the noise of a perfect score, which no default
+    # ensemble comes near (a score on the wrong scale, or a leak)
+    answer = tabpar.place("diamonds", score=0.001, reference="quick")
+    assert answer.verdict == "above-baseline"
+    (finding,) = answer.findings
+    assert finding.probe == "too-good" and "in its units" in finding.sentence
+    assert "checks on your score (1 finding" in str(answer)
+    # the best default's own score is no news
+    best = tabpar.place("diamonds", score=answer.best, reference="quick")
+    assert best.findings == []

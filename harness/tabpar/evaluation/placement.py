@@ -25,7 +25,7 @@ from tabpar.common.text import format_number as fmt
 from tabpar.common.text import html_table
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.predictions import read_predictions_file
-from tabpar.evaluation.probes import findings_lines, probe_predictions
+from tabpar.evaluation.probes import findings_lines, probe_predictions, too_good
 from tabpar.evaluation.reference import (
     Reference,
     published_names,
@@ -120,7 +120,8 @@ class Placement:
         ]
         why = f" ({self.reference_reason})" if self.reference_reason else ""
         lines.append(f"  placed on the {self.reference_label or self.reference}{why}")
-        lines[2:2] = findings_lines(self.findings)  # under the verdict, most decisive first
+        lines[2:2] = findings_lines(self.findings, heading="probes on your predictions"
+                                    if self.paired else "checks on your score")  # under the verdict, most decisive first
         if self.gain_share is None and self.gain_share_note:
             lines.append(f"  gain share: {self.gain_share_note}")
         lines.extend(self.extra_lines)
@@ -293,8 +294,16 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
     difficulty_pct = share_below(tref.difficulty, difficulties.values())
     message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance)
-    findings = (probe_predictions(definition, metric, y, user, row_id, ref_preds, tref,
-                                  predictions, ref) if paired else [])
+    if paired:
+        findings = probe_predictions(definition, metric, y, user, row_id, ref_preds, tref,
+                                     predictions, ref)
+    elif verdict == "above-baseline":  # a typed-in score far past the best: units or a leak
+        findings = too_good.judge(metric, score, tref.best, tref.best_model,
+                                  float(metric.gain(score, tref.best)), best_noise,
+                                  [tref.means[m] for m in DEFAULT_ENSEMBLES if m in tref.means],
+                                  runs, typed_in=True)
+    else:
+        findings = []
     return Placement(
         task=task, metric=metric.name, lower_is_better=metric.lower_is_better, score=score,
         percentile=percentile_of(metric, score, runs),

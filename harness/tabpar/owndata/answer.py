@@ -191,7 +191,8 @@ class Calibration:
                     f"{len(DEFAULT_ENSEMBLES)} default ensembles)" if self.provisional else ""),
                 f"  gain share {gain_share}{par} · noise ±{fmt(p.noise, 3)} (95% bootstrap over the "
                 f"{self.n_holdout:,} holdout rows{', paired with your predictions' if p.paired else ''})",
-                *findings_lines(p.findings),
+                *findings_lines(p.findings, heading="probes on your predictions" if p.paired
+                                else "checks on your score"),
                 f"dataset: {self.dataset} — difficulty {self.difficulty:.2f} (1 − headroom the "
                 f"best default takes), "
                 + (f"percentile {pct} among the {self.suite_tasks} tasks of the "

@@ -203,10 +203,11 @@ def _ensembles(ref, task_name, tref, row_id, reference) -> dict:
     return out or {tref.best_model: reference["best"], tref.par_model: reference["par"]}
 
 
-def findings_lines(findings: list, indent: str = "  ") -> list[str]:
+def findings_lines(findings: list, indent: str = "  ",
+                   heading: str = "probes on your predictions") -> list[str]:
     """The text lines that show findings under a verdict (none when there are none)."""
     if not findings:
         return []
-    return ([f"{indent}probes on your predictions ({len(findings)} finding"
+    return ([f"{indent}{heading} ({len(findings)} finding"
              f"{'s' if len(findings) > 1 else ''}, most decisive first):"]
             + [f"{indent}- {f}" for f in findings])

@@ -21,30 +21,39 @@ def examine(ctx) -> list[Finding]:
     if not ctx.above_best:
         return []
     gain, width = ctx.vs_best
-    metric = ctx.metric
+    return judge(ctx.metric, ctx.score, ctx.best, ctx.best_model, gain, width,
+                 list(ctx.ensemble_means.values()), ctx.reference_scores)
+
+
+def judge(metric, score: float, best: float, best_model: str, gain: float, width: float,
+          ensemble_means: list, reference_scores: list, typed_in: bool = False
+          ) -> list[Finding]:
+    """The finding for a score that beats the best default by ``gain`` (metric units, > 0 =
+    better) with noise ``width`` (the band's half-width), or none. ``typed_in``: the score was
+    given as a number, whose units are then as suspect as a leak."""
     reasons = []
-    means = list(ctx.ensemble_means.values())
-    spread = max(means) - min(means) if means else float("inf")
+    spread = max(ensemble_means) - min(ensemble_means) if ensemble_means else float("inf")
     if gain > max(2 * width, spread):
-        reasons.append(f"it beats the best default ({ctx.best_model} {fmt(ctx.best)}) by "
+        reasons.append(f"it beats the best default ({best_model} {fmt(best)}) by "
                        f"{fmt(gain, 3)}, {gain / width:.1f} times the noise (±{fmt(width, 3)}) "
                        f"and more than the default ensembles differ among themselves "
                        f"({fmt(spread, 3)})")
-    remaining = abs(metric.perfect - ctx.score)
-    if remaining <= width < abs(metric.perfect - ctx.best):
+    remaining = abs(metric.perfect - score)
+    if remaining <= width < abs(metric.perfect - best):
         reasons.append(f"it is within the noise of the perfect {metric.name} "
                        f"({fmt(metric.perfect)}), which the best default is not")
-    beats_all = all(metric.better(ctx.score, s) for s in ctx.reference_scores)
+    beats_all = all(metric.better(score, s) for s in reference_scores)
     if beats_all and spread < width:
         reasons.append(f"it beats every reference run while the default ensembles agree "
                        f"within {fmt(spread, 3)}")
     if not reasons:
         return []
-    sentence = (f"Too good to be true? Your {metric.name} {fmt(ctx.score)}: "
-                + "; ".join(reasons)
-                + ". Check that no holdout row or its target reached training, feature "
-                  "engineering or tuning.")
-    return [Finding(PROBE, {"score": ctx.score, "best": ctx.best, "gain_over_best": gain,
+    check = ("Check that it is this task's metric in its units, and that no holdout row or its "
+             "target reached training, feature engineering or tuning." if typed_in else
+             "Check that no holdout row or its target reached training, feature engineering "
+             "or tuning.")
+    sentence = f"Too good to be true? Your {metric.name} {fmt(score)}: {'; '.join(reasons)}. {check}"
+    return [Finding(PROBE, {"score": score, "best": best, "gain_over_best": gain,
                             "noise": width, "ensemble_spread": spread,
                             "beats_every_run": beats_all}, sentence,
                     strength=gain / max(width, 1e-12), mechanism=False)]

@@ -159,6 +159,7 @@ class Reference:
         rows = load_results(self.folder)
         self.rows = rows[rows["status"] == "ok"] if not rows.empty else rows
         self._cache: dict = {}
+        self._tasks: list | None = None
 
     @property
     def label(self) -> str:
@@ -174,7 +175,10 @@ class Reference:
 
     @property
     def tasks(self) -> list[str]:
-        return [t for t in self.meta.get("tasks", {}) if t in set(self.rows.get("task", []))]
+        if self._tasks is None:  # read per task by every caller: worked out once
+            present = set(self.rows["task"].unique()) if "task" in self.rows else set()
+            self._tasks = [t for t in self.meta.get("tasks", {}) if t in present]
+        return self._tasks
 
     def task(self, name: str) -> TaskReference:
         if name in self._cache:

@@ -285,8 +285,13 @@ def suite_plot(reference: Reference, overlay: Reference | None = None, ax=None):
     ax.set_title(f"Default ensembles across suite '{reference.suite}'\n"
                  f"grouped by task type; within a type, harder tasks lower down", fontsize=11)
     ax.grid(axis="x", alpha=0.3)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=4, fontsize=8,
-              frameon=False)
+    # a fixed distance below the axes (under the two-line x-label), whatever the plot's height:
+    # a fraction of the axes left a gap of several inches at 60+ tasks
+    from matplotlib.transforms import ScaledTranslation
+
+    below = ax.transAxes + ScaledTranslation(0, -0.85, ax.figure.dpi_scale_trans)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, 0), bbox_transform=below, ncol=4,
+              fontsize=8, frameon=False)
     return fig
 
 

@@ -101,8 +101,9 @@ def test_place_recognises_the_split_and_names_the_right_reference(tmp_path, caps
 def test_score_placement_says_which_reference(capsys):
     code, out, _ = run_cli(["place", "diamonds", "--score", "0.13", "--suite", "quick"], capsys)
     assert code == 0 and "placed on the published reference 'quick'" in out
+    # without a suite: the widest published reference (wide holds the default tasks too)
     code, out, _ = run_cli(["place", "diamonds", "--score", "0.13"], capsys)
-    assert code == 0 and "placed on the published reference 'default'" in out
+    assert code == 0 and "placed on the published reference 'wide'" in out
 
 
 # --- messages that fit the task type ----------------------------------------------------------

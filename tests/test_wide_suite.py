@@ -8,7 +8,9 @@ fitted and only the sampled tasks are loaded, so the file runs in seconds and of
 """
 from __future__ import annotations
 
+import json
 from collections import Counter
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -269,3 +271,47 @@ def test_derived_rain_target_follows_the_weather_help_page(wide):
     assert (raw["precip"] == "T").sum() == len(raw) - len(kept)
     assert len(loaded.frame) == len(kept)
     np.testing.assert_array_equal(loaded.frame["rain"].to_numpy(), (kept >= 0.01).astype(int))
+
+
+# --- the published wide reference ---------------------------------------------------------
+
+def _task_block(name: str) -> str:
+    """The lines of suites/wide.toml that define one task (its comments included)."""
+    text = (Path(__file__).resolve().parents[1] / "suites" / "wide.toml").read_text()
+    block = text.split(f'name = "{name}"', 1)[1]
+    return block.split("[[task]]", 1)[0]
+
+
+def test_the_wide_reference_is_published_whole_with_its_provenance(wide):
+    from tabpar.evaluation.reference import Reference, published_names, reference_for
+    from tabpar.models.zoo import MODELS
+
+    assert "wide" in published_names() and reference_for(None) == "wide"
+    ref = Reference("wide")
+    assert sorted(ref.tasks) == sorted(t.name for t in wide.tasks)
+    provenance = json.loads((Path(ref.folder) / "provenance.json").read_text())
+    expected = len(wide.tasks) * len(MODELS) * 3
+    assert provenance["jobs"] == provenance["ok"] == expected
+    assert provenance["build_seconds"] > 0
+    assert {"python", "numpy", "pandas", "scikit-learn", "xgboost", "lightgbm"} <= set(
+        provenance["versions"])
+
+
+def test_where_a_default_ensemble_does_not_beat_naive_the_task_says_so(wide):
+    from tabpar.common.metrics import get_metric
+    from tabpar.evaluation.reference import Reference
+    from tabpar.models.zoo import DEFAULT_ENSEMBLES
+
+    ref = Reference("wide")
+    losing = {}
+    for name in ref.tasks:
+        t = ref.task(name)
+        metric = get_metric(t.metric)
+        lost = [m for m in DEFAULT_ENSEMBLES if not metric.better(t.means[m], t.naive)]
+        if lost:
+            losing[name] = lost
+            assert len(lost) < len(DEFAULT_ENSEMBLES), name  # something learns on every task
+            block = _task_block(name)
+            for model in lost:
+                assert f"{model} (" in block or f"{model} loses" in block, (name, model)
+    assert losing  # the reference does hold such tasks; each is explained above

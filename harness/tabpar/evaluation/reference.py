@@ -149,6 +149,15 @@ class TaskReference:
         return 1.0 - headroom_taken(self.metric, self.naive, self.best)
 
 
+def _spread(scores: list) -> float:
+    """Standard deviation over seeds; 0 for one seed, and for scores equal to the last bits
+    (a model the seed does not change: its mean of equal floats can differ from them by
+    rounding, which printed as a spread of 4e-18)."""
+    if len(scores) < 2 or np.ptp(scores) <= 1e-12 * max(1.0, float(np.max(np.abs(scores)))):
+        return 0.0
+    return float(np.std(scores, ddof=1))
+
+
 class Reference:
     """A results folder read as a reference."""
 
@@ -206,7 +215,7 @@ class Reference:
             fingerprint=self.meta["tasks"][name]["fingerprint"], scores=scores, means=means,
             naive=means["naive"], best=ensembles[best_model], best_model=best_model, par=par,
             par_model=par_model,
-            seed_spread=float(np.std(best_scores, ddof=1)) if len(best_scores) > 1 else 0.0)
+            seed_spread=_spread(best_scores))
         self._cache[name] = ref
         return ref
 

@@ -342,3 +342,13 @@ def test_a_best_default_the_seed_does_not_change_has_no_seed_spread():
     assert max(scores) - min(scores) < 1e-12
     answer = tabpar.place("pitch_type", score=0.5, suite="wide")
     assert answer.seed_spread == 0.0 and "seed spread 0\n" in str(answer) + "\n"
+
+
+def test_an_unknown_task_on_the_wide_reference_points_to_the_listing(capsys):
+    code, out, err = run_cli(["place", "diamond", "--score", "0.12"], capsys)
+    assert code == 2 and out == ""
+    assert "65 of them: 'tabpar suites' lists them" in err and "'diamonds'" in err
+    assert "txhousing" not in err  # not the 65 names
+    code, _, err = run_cli(["place", "diamond", "--score", "0.12", "--reference", "quick"],
+                           capsys)
+    assert code == 2 and "txhousing" in err  # ten names are listed

@@ -66,6 +66,8 @@ def published_names() -> list[str]:
                   if (p / RUN_FILE).is_file() and (p / "provenance.json").is_file())
 
 
+MAX_LISTED_TASKS = 12  # an error names a reference's tasks when there are no more than this
+
 # without a suite, the widest published reference: more tasks make a finer difficulty scale
 WIDEST_FIRST = ("wide", "default")
 
@@ -194,9 +196,12 @@ class Reference:
             return self._cache[name]
         if name not in self.tasks:
             near = close_matches(name, self.tasks).strip()
+            # a wide reference's 65 names make a wall of text: 'tabpar suites' lists them
+            listed = (", ".join(self.tasks) if len(self.tasks) <= MAX_LISTED_TASKS else
+                      f"{len(self.tasks)} of them: 'tabpar suites' lists them")
             raise UserError(f"Task '{name}' is not in the {self.label}; choose one of its "
-                            f"tasks ({', '.join(self.tasks)})" + (f": {near[0].lower()}{near[1:]}"
-                                                                  if near else "."))
+                            f"tasks ({listed})" + (f": {near[0].lower()}{near[1:]}"
+                                                   if near else "."))
         rows = self.rows[self.rows["task"] == name].sort_values(["model", "seed"])
         metric = get_metric(rows["metric"].iloc[0])
         scores = {m: g["score"].astype(float).tolist() for m, g in rows.groupby("model")}

@@ -410,6 +410,31 @@ def test_categorical_levels_unused_in_training_rows_are_unseen():
     assert (got[np.array([v == "hotel" for v in test])] == 0).all()
 
 
+@pytest.mark.parametrize("shape", ["several chunks", "all missing", "no rows"])
+def test_arrow_held_text_gives_the_codes_of_the_same_text_as_objects(shape):
+    # pandas 3 reads text into Arrow memory, in chunks; the codes must not depend on how the
+    # text is held. Reference: OrdinalEncoder on the same values (+ 1, as above).
+    pieces = {"several chunks": [synthetic_categories(70, s) for s in (7, 8, 9)],
+              "all missing": [[None] * 30],
+              "no rows": [[]]}[shape]
+    train = sum(pieces, [])
+    # pd.concat keeps each piece as its own Arrow chunk
+    arrow = pd.concat([pd.Series(p, dtype="string[pyarrow]") for p in pieces],
+                      ignore_index=True)
+    test = synthetic_categories(50, 10, pool=LEVELS + ["kilo"])
+    as_objects = BaselinePrep().fit(pd.DataFrame({"c": pd.Series(train, dtype=object)}))
+    as_arrow = BaselinePrep().fit(pd.DataFrame({"c": arrow}))
+    assert list(as_arrow.categories_["c"]) == list(as_objects.categories_["c"])
+    for rows in (test, train):
+        got = as_arrow.transform(pd.DataFrame({"c": pd.Series(rows, dtype="string[pyarrow]")}))
+        np.testing.assert_array_equal(
+            got, as_objects.transform(pd.DataFrame({"c": pd.Series(rows, dtype=object)})))
+        if train and any(v is not None for v in train):
+            np.testing.assert_array_equal(got[:, 0], reference_codes(train, rows))
+        else:  # nothing learned: every row is unseen or missing
+            assert (got == 0).all()
+
+
 def test_ordinal_order_is_honoured():
     order = ["Fair", "Good", "Very Good", "Premium", "Ideal"]  # synthetic quality grades
     train = synthetic_categories(100, 3, pool=order)

@@ -19,10 +19,17 @@ from tabpar.data.sources import to_datetimes
 from tabpar.procedure.calendar import CALENDAR_FIELDS, distinct_date_fields
 
 MISSING_SUFFIX = "__missing"
+# rows per block when one column of codes fills several output columns: 64k row codes (512 KiB)
+# stay in cache across the columns (bench/prep_speed.py: 15 date fields of 982k rows in 27 ms
+# against 35 ms a column at a time)
+_ROWS_PER_BLOCK = 1 << 16
 
 
 def _sorted_levels(values) -> list:
     """Numbers in numeric order, anything else by its text (mixed types: numbers first)."""
+    if all(type(v) is str for v in values):  # text only (most columns): plain order is the same
+        return sorted(values)
+
     def key(v):
         if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool):
             return (0, float(v), "")
@@ -62,14 +69,17 @@ def _value_codes(series: pd.Series):
 
 def _column_median(series: pd.Series, values: np.ndarray, gap: np.ndarray) -> float:
     """Median of the non-missing values (NaN if none), by counting for small-range integers."""
-    if pd.api.types.is_integer_dtype(series) and not gap.any() and len(values):
+    if gap is not None and gap.any():
+        values = values[~gap]
+    elif pd.api.types.is_integer_dtype(series) and len(values):
         ints = series.to_numpy()
         low, high = int(ints.min()), int(ints.max())
         if high - low < 1 << 20:
-            counts = np.bincount(ints - low)
-            return median_from_counts(np.arange(len(counts), dtype=float) + low, counts)
-    known = values[~gap] if gap.any() else values
-    return float(np.median(known)) if len(known) else float("nan")
+            # counted from 0 where the values allow it: saves a shifted copy of the column
+            base = 0 if 0 <= low and high < 1 << 20 else low
+            counts = np.bincount(ints - base if base else ints)
+            return median_from_counts(np.arange(len(counts), dtype=float) + base, counts)
+    return float(np.median(values)) if len(values) else float("nan")
 
 
 def _text_names(X) -> bool:
@@ -285,10 +295,11 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
             elif is_numeric_column(series) and col not in ordinal:
                 self.roles_[col] = "numeric"
                 values = _numeric(series)
-                gap = np.isnan(values) if values.dtype.kind == "f" else np.zeros(len(values), bool)
-                gaps = bool(gap.any())
+                gap = np.isnan(values) if values.dtype.kind == "f" else None  # ints: no gaps
+                gaps = gap is not None and bool(gap.any())
                 stat = (_column_median(series, values, gap) if self.fill == "median"
-                        else float(np.nanmean(values)) if (~gap).any() else 0.0)
+                        else float(np.nanmean(values))
+                        if len(values) and (gap is None or not gap.all()) else 0.0)
                 self.fill_values_[col] = 0.0 if np.isnan(stat) else stat
                 names.append(str(col))
             else:
@@ -298,9 +309,12 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                     levels = list(ordinal[col])
                 elif isinstance(series.dtype, pd.CategoricalDtype) and series.dtype.ordered:
                     levels = list(series.dtype.categories)
-                else:  # the values these rows hold (a categorical's unused levels are not)
+                elif isinstance(series.dtype, pd.CategoricalDtype):
+                    # the levels these rows hold: a categorical's unused levels are left out
                     held = np.bincount(codes[codes >= 0], minlength=len(values)) > 0
                     levels = _sorted_levels(np.asarray(values, dtype=object)[held])
+                else:  # factorising the rows gave only values they hold
+                    levels = _sorted_levels(np.asarray(values, dtype=object))
                 self.categories_[col] = pd.Index(levels, dtype=object)
                 work[col] = (codes, values)
                 if 0 < len(levels) <= self.one_hot_max_levels:
@@ -330,8 +344,12 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 codes, distinct = work[col] if col in work else distinct_date_fields(X[col])[:2]
                 # one row past the distinct dates holds the fill: missing dates (code -1) get it
                 table = np.vstack([distinct, self.fill_values_[col][None, :]]).astype(np.float32)
-                for k in range(table.shape[1]):  # each output column written in one pass
-                    np.take(np.ascontiguousarray(table[:, k]), codes, out=out[:, j + k])
+                fields = [np.ascontiguousarray(table[:, k]) for k in range(table.shape[1])]
+                # a block of rows at a time, so its codes are read from cache by every field
+                for start in range(0, len(codes), _ROWS_PER_BLOCK):
+                    rows = slice(start, start + _ROWS_PER_BLOCK)
+                    for k, field in enumerate(fields):
+                        np.take(field, codes[rows], out=out[rows, j + k])
                 j += table.shape[1]
                 gap = codes < 0
             elif role == "numeric":

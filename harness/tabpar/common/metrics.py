@@ -34,7 +34,10 @@ def _rmsle(y, p, w=None):
     if (y < 0).any() or (p < 0).any():
         raise UserError("RMSLE needs targets and predictions >= 0; found a negative value "
                         "(use rmse for targets that can be negative).")
-    return _rmse(np.log1p(y), np.log1p(p), w)
+    # in extended precision: NumPy's float64 log1p rounds the last bit by the CPU's vector
+    # instructions (the same choice as tabpar.data.log_scale, which common cannot import)
+    return _rmse(np.log1p(y.astype(np.longdouble)).astype(float),
+                 np.log1p(p.astype(np.longdouble)).astype(float), w)
 
 
 def _mae(y, p, w=None):
@@ -70,7 +73,8 @@ def _log_loss(y, p, w=None):
         p = np.column_stack([1.0 - p, p])
     p = np.clip(p, _EPS, 1.0)
     p = p / p.sum(axis=1, keepdims=True)
-    return float(-np.average(np.log(p[np.arange(len(y)), y]), weights=_weights(w, len(y))))
+    own = p[np.arange(len(y)), y].astype(np.longdouble)  # as in _rmsle: same bits on any CPU
+    return float(-np.average(np.log(own).astype(float), weights=_weights(w, len(y))))
 
 
 def _binary_auc(y, score, w=None):

@@ -23,6 +23,7 @@ import numpy as np
 from tabpar.common.errors import UserError
 from tabpar.common.metrics import get_metric
 from tabpar.common.text import count_of, format_p
+from tabpar.data.log_scale import from_log_scale, to_log_scale
 from tabpar.data.suite_values import check_seconds, check_seed_count, check_tolerance
 from tabpar.data.suites import Task, load_suite
 from tabpar.evaluation.comparison_result import (
@@ -63,7 +64,7 @@ LARGE_HOLDOUT = 20_000
 def naive_prediction(task: Task, y_train: np.ndarray, n_classes: int):
     """The naive floor's constant prediction (mean, in log1p space for RMSLE; class prior)."""
     if task.type == "regression":
-        return float(np.expm1(np.mean(np.log1p(y_train)))) if task.log_target \
+        return float(from_log_scale(np.mean(to_log_scale(y_train)))) if task.log_target \
             else float(np.mean(y_train))
     prior = np.bincount(y_train.astype(int), minlength=n_classes) / len(y_train)
     return prior[1] if task.type == "binary" else prior

@@ -12,6 +12,7 @@ import numpy as np
 
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import release_freed_memory
+from tabpar.data.log_scale import to_log_scale
 from tabpar.execution.cache import PreparedTask, load_arrays
 from tabpar.execution.estimates import predict_seconds
 from tabpar.execution.provenance import preparation_code_digest
@@ -69,7 +70,7 @@ def _fit_and_score(job: dict) -> dict:
         task_type, k = job["type"], max(len(job["classes"]), 2)
         X_train, y_train = np.asarray(arrays["X_train"]), np.asarray(arrays["y_train"])
         X_hold, y_hold = np.asarray(arrays["X_holdout"]), np.asarray(arrays["y_holdout"])
-        y_fit = np.log1p(y_train) if job["log_target"] else y_train
+        y_fit = to_log_scale(y_train) if job["log_target"] else y_train
         model = build_model(job["model"], task_type, job["seed"], job["threads"])
         # the naive floor (a mean or class shares) runs no thread pool: finding the pools
         # (and importing the ensembles' library to do so) would cost more than its fit

@@ -3,6 +3,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from tabpar.data.log_scale import from_log_scale
+
 
 def predict(model, X, task_type: str, n_classes: int, log_target: bool) -> np.ndarray:
     """Predict ``X`` with a fitted zoo model, in the metric's terms.
@@ -31,7 +33,7 @@ def predict(model, X, task_type: str, n_classes: int, log_target: bool) -> np.nd
     """
     if task_type == "regression":
         out = np.asarray(model.predict(X), dtype=np.float64)
-        return np.clip(np.expm1(out), 0.0, None) if log_target else out
+        return np.clip(from_log_scale(out), 0.0, None) if log_target else out
     proba = np.asarray(model.predict_proba(X), dtype=np.float64)
     full = np.zeros((len(X), n_classes))
     full[:, np.asarray(model.classes_, dtype=int)] = proba  # classes unseen in training → 0

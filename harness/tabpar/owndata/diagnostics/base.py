@@ -21,6 +21,7 @@ import pandas as pd
 
 from tabpar.common.metrics import get_metric
 from tabpar.common.system import available_cores
+from tabpar.data.log_scale import to_log_scale
 from tabpar.data.sources import LoadedTask
 from tabpar.data.split import Split, load_and_split
 from tabpar.data.suites import Task
@@ -131,7 +132,7 @@ def fit_predict(data: TaskData, X_fit, y_fit, X_eval, model: str = FAST_MODEL, s
     threads = 1 if len(X_fit) <= SMALL_FIT_ROWS else data.threads
     estimator = build_model(model, task.type, seed, threads)
     with threadpool_limits(limits=threads):
-        estimator.fit(X_fit, np.log1p(y_fit) if task.log_target else y_fit)
+        estimator.fit(X_fit, to_log_scale(y_fit) if task.log_target else y_fit)
         prediction = predict(estimator, X_eval, task.type, data.n_classes, task.log_target)
     return prediction, estimator
 

@@ -7,6 +7,14 @@ The target is a noisy non-linear function of a few columns, so there is somethin
 
     python bench/calibrate_speed.py                    # regression, the default zoo, 1 seed
     python bench/calibrate_speed.py --type binary
+    python bench/calibrate_speed.py --paired OLD/harness --rounds 3
+
+``--paired`` times this code against another checkout's ``harness`` folder (an earlier commit
+in a git worktree, say) on the same table, in alternating order (old, new, new, old, ...), each
+run with a cold cache, and prints each side's wall times, their medians and the per-round
+new/old ratios: the figure for "no slower than before". The other side runs with this
+environment's libraries, its own tabpar put first on PYTHONPATH; its output may be one JSON
+document (before answers came as JSON Lines).
 
 Runs the console script once, as a user would (imports and all), with --json, which prints one
 JSON object per answer as it comes; prints the seconds from the start to the provisional answer
@@ -86,7 +94,12 @@ def main() -> int:
     parser.add_argument("--type", default="regression", choices=["regression", "binary"])
     parser.add_argument("--rows", type=int, default=ROWS)
     parser.add_argument("--keep", action="store_true", help="keep the output folder")
+    parser.add_argument("--paired", metavar="HARNESS", type=Path,
+                        help="another checkout's harness folder to time against this code")
+    parser.add_argument("--rounds", type=int, default=3, help="paired rounds (with --paired)")
     args = parser.parse_args()
+    if args.paired is not None:
+        return paired(args)
 
     from tabpar.execution.provenance import library_versions
 
@@ -94,11 +107,7 @@ def main() -> int:
     data = work / "synthetic.parquet"
     synthetic_table(args.rows, args.type).to_parquet(data, index=False)
     out = work / "out"
-    score = "60" if args.type == "regression" else "0.7"
-    script = Path(sys.executable).parent / "tabpar"  # the console script of this environment
-    launcher = [str(script)] if script.exists() else [sys.executable, "-m", "tabpar.cli.main"]
-    command = launcher + ["calibrate", str(data), "--target", "target",
-               "--date", "opened", "--score", score, "--seeds", "1", "--out", str(out), "--json"]
+    command = _calibrate_command(data, out, args.type)
     env = dict(os.environ, TABPAR_CACHE=str(work / "cache"))  # a cold cache, as a first run
     load_before = os.getloadavg()
     answers = []  # (seconds from the start, answer) as each line arrives
@@ -143,6 +152,64 @@ def main() -> int:
         print(f"  output kept in {out}")
     else:
         shutil.rmtree(work, ignore_errors=True)
+    return 0
+
+
+def _calibrate_command(data: Path, out: Path, task_type: str) -> list:
+    score = "60" if task_type == "regression" else "0.7"
+    script = Path(sys.executable).parent / "tabpar"  # the console script of this environment
+    launcher = [str(script)] if script.exists() else [sys.executable, "-m", "tabpar.cli.main"]
+    return launcher + ["calibrate", str(data), "--target", "target", "--date", "opened",
+                       "--score", score, "--seeds", "1", "--out", str(out), "--json"]
+
+
+def _final_answer(stdout: str) -> dict:
+    """The last answer printed: JSON Lines now, one indented document before."""
+    lines = [line for line in stdout.splitlines() if line.strip()]
+    try:
+        return json.loads(lines[-1])
+    except (IndexError, json.JSONDecodeError):
+        return json.loads(stdout)
+
+
+def paired(args) -> int:
+    """Alternating cold-cache runs of the other checkout ("old") and this code ("new")."""
+    harness = args.paired.resolve()
+    if not (harness / "tabpar" / "__init__.py").is_file():
+        print(f"--paired {args.paired}: no tabpar package in that folder; give the harness "
+              f"folder of another checkout", file=sys.stderr)
+        return 2
+    work = Path(tempfile.mkdtemp(prefix="tabpar-bench-calibrate-paired-"))
+    data = work / "synthetic.parquet"
+    synthetic_table(args.rows, args.type).to_parquet(data, index=False)
+    walls = {"old": [], "new": []}
+    order = [side for r in range(args.rounds)
+             for side in (("old", "new") if r % 2 == 0 else ("new", "old"))]
+    for i, side in enumerate(order):
+        env = dict(os.environ, TABPAR_CACHE=str(work / f"cache{i}"))
+        if side == "old":
+            env["PYTHONPATH"] = os.pathsep.join(
+                p for p in (str(harness), os.environ.get("PYTHONPATH")) if p)
+        load = os.getloadavg()[0]
+        t0 = time.perf_counter()
+        run = subprocess.run(_calibrate_command(data, work / f"out{i}", args.type), env=env,
+                             capture_output=True, text=True)
+        seconds = time.perf_counter() - t0
+        if run.returncode != 0:
+            print(run.stderr, file=sys.stderr)
+            return run.returncode
+        final = _final_answer(run.stdout)
+        walls[side].append(seconds)
+        fits = ", ".join(f"{m} {v['fit_seconds']:.1f}" for m, v in final["baseline"].items())
+        print(f"run {i + 1} ({side}): {seconds:.1f} s wall [load {load:.2f}]; fits (s): {fits}",
+              flush=True)
+    ratios = [new / old for old, new in zip(walls["old"], walls["new"])]
+    median = {side: float(np.median(w)) for side, w in walls.items()}
+    print(f"median wall: old {median['old']:.1f} s, new {median['new']:.1f} s; new/old "
+          f"{median['new'] / median['old']:.3f} (per round: "
+          + ", ".join(f"{r:.2f}" for r in ratios) + ")")
+    print(f"machine: {json.dumps(machine())}")
+    shutil.rmtree(work, ignore_errors=True)
     return 0
 
 

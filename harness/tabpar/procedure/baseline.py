@@ -23,6 +23,11 @@ MISSING_SUFFIX = "__missing"
 # stay in cache across the columns (bench/prep_speed.py: 15 date fields of 982k rows in 27 ms
 # against 35 ms a column at a time)
 _ROWS_PER_BLOCK = 1 << 16
+# np.take buffers ``out`` in its default mode ("raise"; NumPy's documentation of take): "wrap"
+# writes straight into the output, about half the time on 982k rows. The row codes come from
+# factorising, so they lie in -1..len(table)-2, and -1 wraps to the table's last entry, the one
+# for missing rows, as it would in the default mode.
+_SPREAD = "wrap"
 
 
 def _sorted_levels(values) -> list:
@@ -349,7 +354,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                 for start in range(0, len(codes), _ROWS_PER_BLOCK):
                     rows = slice(start, start + _ROWS_PER_BLOCK)
                     for k, field in enumerate(fields):
-                        np.take(field, codes[rows], out=out[rows, j + k])
+                        np.take(field, codes[rows], out=out[rows, j + k], mode=_SPREAD)
                 j += table.shape[1]
                 gap = codes < 0
             elif role == "numeric":
@@ -377,7 +382,7 @@ class BaselinePrep(TransformerMixin, BaseEstimator):
                     block[np.flatnonzero(seen), row_codes[seen]] = 1
                     j += levels
                 else:  # 0 = missing or unseen, else 1..K, written in one pass
-                    np.take((lookup + 1).astype(np.float32), codes, out=out[:, j])
+                    np.take((lookup + 1).astype(np.float32), codes, out=out[:, j], mode=_SPREAD)
                     j += 1
                 gap = None
             if col in self.flagged_:

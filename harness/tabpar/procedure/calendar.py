@@ -100,5 +100,8 @@ def distinct_date_fields(dates: pd.Series):
     """
     codes, uniques = pd.factorize(dates, use_na_sentinel=True)
     fields = calendar_fields(pd.Series(uniques))
-    counts = np.bincount(codes + 1, minlength=len(uniques) + 1)[1:]  # one pass; -1 → bin 0
+    if len(codes) and codes.min() < 0:  # missing dates: -1 → bin 0, dropped
+        counts = np.bincount(codes + 1, minlength=len(uniques) + 1)[1:]
+    else:  # no shifted copy of the codes to make
+        counts = np.bincount(codes, minlength=len(uniques))
     return codes, fields, counts

@@ -1,6 +1,6 @@
 """Baseline procedure speed on ~1M rows (the flights rows repeated three times).
 
-Prints three times (best of 3) and the ratios:
+Prints times (best of 3) and the ratios:
 - procedure fit+transform against the floors of the frame it is given, measured for the text
   held as the loaded frame and the cache hold it (Python objects), as Arrow strings, and as
   categoricals, in two ways:
@@ -21,8 +21,13 @@ Prints three times (best of 3) and the ratios:
   + SimpleImputer for the date column; tests/test_prep_equivalence.py checks on small frames that
   both give the same output.
 
-    python bench/prep_speed.py
+The floors are timed in paired rounds (``--rounds``, default 7): each round times the
+procedure and each floor once, and the ratio is the median of the rounds' ratios, so a slow
+spell of a shared machine does not land on one side only.
+
+    python bench/prep_speed.py [--rounds 7]
 """
+import argparse
 import sys
 from pathlib import Path
 
@@ -49,7 +54,7 @@ def _fastest_encoding(column: pd.Series):
     return pd.factorize(column)
 
 
-def _counting_pass(values: np.ndarray) -> float:
+def _counting_pass(values: np.ndarray, repeats: int = 3) -> float:
     """Seconds of one np.bincount over an integer column of small range (inf otherwise): the
     pass an exact median by counting cannot do without."""
     if values.dtype.kind not in "iu" or not len(values):
@@ -58,10 +63,13 @@ def _counting_pass(values: np.ndarray) -> float:
     if high - low >= 1 << 20:
         return float("inf")
     shifted = values - low if low < 0 else values
-    return best_of(lambda: np.bincount(shifted))[0]
+    return best_of(lambda: np.bincount(shifted), repeats)[0]
 
 
 def main():
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--rounds", type=int, default=7, help="paired rounds for the floors")
+    rounds = parser.parse_args().rounds
     task = load_suite("default").task("flights")
     frame = pd.concat([load_task(task).features] * 3, ignore_index=True)
     numeric = frame.select_dtypes("number")
@@ -98,30 +106,41 @@ def main():
           f"({cat_s / copy_s:.1f}x the copy; same values: {np.array_equal(cat_out, ours)})")
     print(f"ratio procedure / numpy copy       {ours_s / copy_s:9.1f}x  (earlier target 2, "
           f"withdrawn)")
-    # the rest of the output's least work, the same whatever holds the text
-    median_s = sum(min(best_of(lambda: np.median(numeric[c].to_numpy()))[0],
-                       _counting_pass(numeric[c].to_numpy())) for c in numeric.columns)
-    dates_s, _ = best_of(lambda: pd.factorize(frame["time_hour"]))
-    print(f"exact medians of the {numeric.shape[1]} numeric columns (fastest of np.median and "
-          f"one np.bincount each) {median_s * 1000:.1f} ms; distinct dates (pd.factorize) "
-          f"{dates_s * 1000:.1f} ms")
-    print("procedure against the floors of the frame it is given: text floors (encoding + "
-          "write; issue's target <= 1.3, unreachable) and complete floors (+ medians + "
-          "distinct dates; restated target <= 1.3):")
+    print(f"procedure against the floors of the frame it is given, {rounds} paired rounds (each "
+          "times the procedure and every floor once, in turn, so both see the same machine):")
+    print("  text floors = encoding + write (issue's target <= 1.3, unreachable); complete "
+          "floors = text floors + medians + distinct dates (restated target <= 1.3)")
     held = {"as loaded and cached (objects)": frame,
             "Arrow strings": frame.astype({c: pd.StringDtype("pyarrow") for c in text}),
             "categoricals": as_categories}
     for label, given in held.items():
-        encode_s, _ = best_of(lambda: [_fastest_encoding(given[c]) for c in text])
-        proc_s, out = best_of(
-            lambda: BaselinePrep(date_columns=["time_hour"]).fit_transform(given))
-        floor = encode_s + write_s
-        complete = floor + median_s + dates_s
-        print(f"  {label:32s} procedure {proc_s * 1000:6.1f} ms; text floors "
-              f"{floor * 1000:6.1f} ms (encoding {encode_s * 1000:.1f} + write "
-              f"{write_s * 1000:.1f}): {proc_s / floor:.2f}x; complete floors "
-              f"{complete * 1000:6.1f} ms: {proc_s / complete:.2f}x  "
-              f"(same values: {np.array_equal(out, ours, equal_nan=True)})")
+        times = {"procedure": [], "encoding": [], "write": [], "medians": [], "dates": []}
+        for _ in range(rounds):
+            times["procedure"].append(best_of(
+                lambda: BaselinePrep(date_columns=["time_hour"]).fit_transform(given), 1)[0])
+            times["encoding"].append(best_of(
+                lambda: [_fastest_encoding(given[c]) for c in text], 1)[0])
+            times["write"].append(best_of(
+                lambda: np.copyto(np.empty_like(ours, order="F"), ours), 1)[0])
+            # the rest of the output's least work, the same whatever holds the text
+            times["medians"].append(sum(min(best_of(lambda: np.median(numeric[c].to_numpy()),
+                                                    1)[0],
+                                            _counting_pass(numeric[c].to_numpy(), 1))
+                                        for c in numeric.columns))
+            times["dates"].append(best_of(lambda: pd.factorize(frame["time_hour"]), 1)[0])
+        t = {k: np.asarray(v) for k, v in times.items()}
+        text_floor = t["encoding"] + t["write"]
+        complete = text_floor + t["medians"] + t["dates"]
+        best = {k: v.min() * 1000 for k, v in t.items()}
+        out = BaselinePrep(date_columns=["time_hour"]).fit_transform(given)
+        print(f"  {label} (same values: {np.array_equal(out, ours, equal_nan=True)}):")
+        print(f"    best of {rounds} (ms): procedure {best['procedure']:.1f}; encoding "
+              f"{best['encoding']:.1f}, write {best['write']:.1f}, medians "
+              f"{best['medians']:.1f}, distinct dates {best['dates']:.1f}")
+        for name, floors in (("text floors    ", text_floor), ("complete floors", complete)):
+            ratios = t["procedure"] / floors
+            print(f"    procedure / {name} median {np.median(ratios):.2f}x (rounds "
+                  f"{ratios.min():.2f}-{ratios.max():.2f})")
     print(f"ratio ColumnTransformer / proc.    {sk_s / ours_s:9.1f}x  (target >= 5)")
     print(f"machine: {machine()}")
 

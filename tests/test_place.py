@@ -22,6 +22,7 @@ from tabpar.evaluation.stats import (
     percentile_of,
 )
 from tabpar.leaderboards.placing import place
+from tabpar.owndata.explanation import compose_answer
 from tabpar.procedure.baseline import BaselinePrep
 from threadpoolctl import threadpool_limits
 
@@ -171,6 +172,28 @@ def test_shuffled_predictions_are_flagged(ames_standard, tmp_path):
     frame.to_csv(tmp_path / "shuffled.csv", index=False)
     result = _place("ames", tmp_path / "shuffled.csv")
     assert result.verdict in ("worse-than-naive", "below-baseline")
+
+
+def test_at_baseline_by_the_tolerance_alone_says_how_far_from_par():
+    # a typed-in score on the published quick reference's diamonds (RMSLE, naive near 1, far
+    # from the ensembles): worse than par by half the tolerance in gain share, which is several
+    # times the noise there, so the verdict rests on the tolerance alone and must say so
+    at_par = place("diamonds", score=0.1, suite="quick", reference="quick")
+    gain_best = at_par.naive - at_par.best  # lower is better
+    score = at_par.par + 0.5 * 0.05 * gain_best
+    assert score - at_par.par > at_par.noise  # the premise: beyond the noise
+    result = place("diamonds", score=score, suite="quick", reference="quick", tolerance=0.05)
+    assert result.verdict == "at-baseline"
+    assert "worse than par" in result.message and "beyond the noise" in result.message
+    assert f"{(score - result.par) / result.par:.0%} of par" in result.message
+    same = place("diamonds", score=result.par, suite="quick", reference="quick")
+    assert same.verdict == "at-baseline" and "not worse than par" in same.message
+    assert result.worse_than_par and not same.worse_than_par
+    # calibrate's answer on the same placement: close to the baseline, never "inside the noise"
+    par_share = (result.naive - result.par) / (result.naive - result.best)
+    answer = compose_answer(result, "typical", None, [], par_share, n_holdout=600,
+                            ensembles=list(result.model_means))
+    assert "worse than par" in answer and "inside the noise" not in answer
 
 
 def test_place_json_has_every_key(capsys):

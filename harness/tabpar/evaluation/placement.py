@@ -83,6 +83,8 @@ class Placement:
     extra_lines: list = field(default_factory=list, repr=False)  # their text, for __str__
     extra_shown: set = field(default_factory=set, repr=False)  # keys extra_lines already show
     findings: list = field(default_factory=list)  # probes on the user's predictions (Finding)
+    # worse than par beyond the noise (an at-baseline verdict then rests on the tolerance)
+    worse_than_par: bool = False
 
     def attach(self, numbers: dict, lines: list[str]) -> None:
         """Add another answer's numbers (kept in ``extra``, merged by ``to_dict``) and the lines
@@ -293,7 +295,8 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     if difficulties is None:
         difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
     difficulty_pct = share_below(tref.difficulty, difficulties.values())
-    message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance)
+    message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance,
+                       par_gain_share, worse_than_par=bands["par"][1] < 0)
     if paired:
         findings = probe_predictions(definition, metric, y, user, row_id, ref_preds, tref,
                                      predictions, ref)
@@ -314,7 +317,8 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         tolerance=tolerance, reference=str(ref.folder), reference_label=ref.label,
         units=definition.units if metric.in_target_units else "",
         model_means=dict(tref.means),
-        reference_scores={m: list(v) for m, v in tref.scores.items()}, findings=findings)
+        reference_scores={m: list(v) for m, v in tref.scores.items()}, findings=findings,
+        worse_than_par=bool(bands["par"][1] < 0))
 
 
 def failure_causes(metric_name: str) -> str:
@@ -332,7 +336,8 @@ _CAUSES = {
 }
 
 
-def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance) -> str:
+def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance,
+             par_gain_share=None, worse_than_par=False) -> str:
     band = f"±{fmt(noise, NOISE_DIGITS)}"
     regression = "regression" in metric.task_types
     if verdict == "worse-than-naive":
@@ -359,6 +364,16 @@ def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, t
     if gain_share is None:
         return (f"At the baseline: {gain_share_note}; this task's holdout does not reward "
                 f"modelling, so a weak score here is the data's, not the pipeline's.")
+    if worse_than_par:
+        # at the baseline by the tolerance alone: say how far in the metric's own terms, since
+        # with naive far off a large gap is a small share of the gain
+        gap = abs(score - tref.par)
+        relative = f", {gap / abs(tref.par):.0%} of par" if tref.par else ""
+        return (f"Within the standard baseline's tolerance, but worse than par {tref.par_model} "
+                f"{fmt(tref.par)} beyond the noise ({band}): by {fmt(gap, 3)}{relative}. As a "
+                f"share of the gain over naive ({fmt(tref.naive)}) that is {gain_share:.2f} "
+                f"against par's {par_gain_share:.2f}, less than the tolerance "
+                f"({tolerance:g}) under it (--tolerance, or tolerance= in Python, sets it).")
     return (f"Within the standard baseline's range: gain share {gain_share:.2f} against par "
-            f"{tref.par_model} {fmt(tref.par)} and best {tref.best_model} {fmt(tref.best)}, "
-            f"differences inside the noise ({band}) or the tolerance ({tolerance:g}).")
+            f"{tref.par_model} {fmt(tref.par)} and best {tref.best_model} {fmt(tref.best)}; "
+            f"not worse than par nor better than the best beyond the noise ({band}).")

@@ -101,6 +101,14 @@ def _verdict(p: Placement, dataset: str, percentile: float | None, par_gain_shar
                 f"pipeline nor the data as the cause; a larger holdout"
                 + ("" if p.paired else " or a predictions file (for a paired band)")
                 + " would settle it" + (f"; {where}" if where else "") + ".")
+    if p.worse_than_par:  # at the baseline by the tolerance alone: not "inside the noise"
+        gap = abs(p.score - p.par)
+        relative = f", {gap / abs(p.par):.0%} of par" if p.par else ""
+        return (f"Close to the baseline, not on it: {score} is worse than par ({fmt(p.par)}) "
+                f"beyond the noise ({noise}), by {fmt(gap, 3)}{relative}, which is less than the "
+                f"tolerance ({tolerance:g}) in gain share ({p.gain_share:.2f} against par's "
+                f"{par_gain_share:.2f}); {base}"
+                + (f"; {where}" if where else "") + ".")
     if dataset == "hard":
         return (f"The data, not the pipeline: {score} matches the standard baseline (gain share "
                 f"{p.gain_share:.2f}, par {par_gain_share:.2f}, differences inside the noise {noise}), "

@@ -295,8 +295,9 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
     if difficulties is None:
         difficulties = {t: d for t, d in ref.difficulties().items() if t != task}
     difficulty_pct = share_below(tref.difficulty, difficulties.values())
+    worse_than_par = bool(bands["par"][1] < 0)
     message = _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, tolerance,
-                       par_gain_share, worse_than_par=bands["par"][1] < 0)
+                       par_gain_share, worse_than_par)
     if paired:
         findings = probe_predictions(definition, metric, y, user, row_id, ref_preds, tref,
                                      predictions, ref)
@@ -318,7 +319,25 @@ def place_task(definition: Task, ref: Reference, score: float | None = None,
         units=definition.units if metric.in_target_units else "",
         model_means=dict(tref.means),
         reference_scores={m: list(v) for m, v in tref.scores.items()}, findings=findings,
-        worse_than_par=bool(bands["par"][1] < 0))
+        worse_than_par=worse_than_par)
+
+
+def gap_to_par(score: float, par: float) -> str:
+    """How far ``score`` is from ``par``, in the metric's units and as a share of par.
+
+    Returns
+    -------
+    str
+        The absolute difference (metric units, no direction), then its share of ``|par|`` in
+        percent, which is left out when par is 0.
+
+    Examples
+    --------
+    >>> gap_to_par(0.12, 0.08852)
+    '0.0315, 36% of par'
+    """
+    gap = abs(score - par)
+    return fmt(gap, 3) + (f", {gap / abs(par):.0%} of par" if par else "")
 
 
 def failure_causes(metric_name: str) -> str:
@@ -367,11 +386,9 @@ def _message(verdict, metric, score, tref, gain_share, noise, gain_share_note, t
     if worse_than_par:
         # at the baseline by the tolerance alone: say how far in the metric's own terms, since
         # with naive far off a large gap is a small share of the gain
-        gap = abs(score - tref.par)
-        relative = f", {gap / abs(tref.par):.0%} of par" if tref.par else ""
         return (f"Within the standard baseline's tolerance, but worse than par {tref.par_model} "
-                f"{fmt(tref.par)} beyond the noise ({band}): by {fmt(gap, 3)}{relative}. As a "
-                f"share of the gain over naive ({fmt(tref.naive)}) that is {gain_share:.2f} "
+                f"{fmt(tref.par)} beyond the noise ({band}): by {gap_to_par(score, tref.par)}. "
+                f"As a share of the gain over naive ({fmt(tref.naive)}) that is {gain_share:.2f} "
                 f"against par's {par_gain_share:.2f}, less than the tolerance "
                 f"({tolerance:g}) under it (--tolerance, or tolerance= in Python, sets it).")
     return (f"Within the standard baseline's range: gain share {gain_share:.2f} against par "

@@ -7,7 +7,12 @@ ran, or some still running), then the verdict and one sentence per finding worth
 from __future__ import annotations
 
 from tabpar.common.text import format_number as fmt
-from tabpar.evaluation.placement import DEFAULT_TOLERANCE, Placement, failure_causes
+from tabpar.evaluation.placement import (
+    DEFAULT_TOLERANCE,
+    Placement,
+    failure_causes,
+    gap_to_par,
+)
 from tabpar.models.zoo import DEFAULT_ENSEMBLES
 
 
@@ -102,12 +107,10 @@ def _verdict(p: Placement, dataset: str, percentile: float | None, par_gain_shar
                 + ("" if p.paired else " or a predictions file (for a paired band)")
                 + " would settle it" + (f"; {where}" if where else "") + ".")
     if p.worse_than_par:  # at the baseline by the tolerance alone: not "inside the noise"
-        gap = abs(p.score - p.par)
-        relative = f", {gap / abs(p.par):.0%} of par" if p.par else ""
         return (f"Close to the baseline, not on it: {score} is worse than par ({fmt(p.par)}) "
-                f"beyond the noise ({noise}), by {fmt(gap, 3)}{relative}, which is less than the "
-                f"tolerance ({tolerance:g}) in gain share ({p.gain_share:.2f} against par's "
-                f"{par_gain_share:.2f}); {base}"
+                f"beyond the noise ({noise}), by {gap_to_par(p.score, p.par)}, which is less "
+                f"than the tolerance ({tolerance:g}) in gain share ({p.gain_share:.2f} against "
+                f"par's {par_gain_share:.2f}); {base}"
                 + (f"; {where}" if where else "") + ".")
     if dataset == "hard":
         return (f"The data, not the pipeline: {score} matches the standard baseline (gain share "
